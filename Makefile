@@ -1,0 +1,34 @@
+# Two commands set everything up: `make demo` and `make test`.
+# Both create .venv with python3 -m venv and install sdrx into it on first use.
+PYTHON ?= python3
+VENV := .venv
+PY := $(VENV)/bin/python
+STAMP := $(VENV)/.sdrx-installed
+
+.PHONY: demo test bench browser clean
+
+$(STAMP): pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --disable-pip-version-check -e '.[test]'
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(VENV)/bin/sdrx --version
+	bash demo_signals/demo.sh
+
+# pytest exits 5 when it collects nothing; that is a failure here too (any non-zero status is).
+test: $(STAMP) browser
+	$(PY) -m pytest -q
+
+bench: $(STAMP)
+	$(PY) bench/bench.py
+
+# The browser test needs Debian's chromium and chromium-driver; install them once if missing.
+browser:
+	@command -v chromium >/dev/null 2>&1 || { \
+	  echo "installing Debian chromium for the browser test"; \
+	  SUDO=$$( [ "$$(id -u)" = 0 ] || echo sudo ); \
+	  $$SUDO apt-get update -qq && $$SUDO apt-get install -y -qq chromium chromium-driver >/dev/null; }
+
+clean:
+	rm -rf $(VENV) build *.egg-info demo_out
