@@ -1,0 +1,57 @@
+"""Command-line tests of ``sdrx plan``."""
+
+import json
+
+import pytest
+
+from sdrx.cli import main
+
+
+def run(args, capsys):
+    try:
+        rc = main(args)
+    except SystemExit as exc:
+        rc = exc.code
+    out, err = capsys.readouterr()
+    return rc, out, err
+
+
+def test_table_and_q(capsys):
+    rc, out, err = run(["plan", "--if", "455k", "--band", "540k:1700k", "--reject", "40", "--at", "10k"], capsys)
+    assert rc == 0, err
+    assert "LO range 995-2155 kHz" in out
+    assert "1227.5" in out  # half-IF spur of the 1000 kHz channel (common practice: f_LO - IF/2)
+    assert "practical" in out and "common practice" in out
+
+
+def test_json(capsys):
+    rc, out, err = run(["plan", "--if", "455k", "--band", "540k:1700k", "--json"], capsys)
+    assert rc == 0, err
+    d = json.loads(out)
+    assert d["lo_range_hz"] == [995000.0, 2155000.0]
+    assert d["image_range_hz"] == [1450000.0, 2610000.0]
+    assert len(d["channels"]) == 117
+    assert d["q_required"] is None
+
+
+def test_comparison(capsys):
+    rc, out, err = run(["plan", "--if", "455k", "--if", "10.7M", "--band", "540k:1700k"], capsys)
+    assert rc == 0, err
+    assert "455" in out and "10700" in out
+    rc, out, err = run(["plan", "--if", "455k", "--if", "10.7M", "--band", "540k:1700k", "--json"], capsys)
+    plans = json.loads(out)["plans"]
+    assert [p["if_hz"] for p in plans] == [455e3, 10.7e6]
+
+
+@pytest.mark.parametrize("args, match", [
+    (["--if", "455k", "--band", "1700k:540k"], "--band '1700k:540k': low edge"),
+    (["--if", "1M", "--band", "540k:1700k"], "--if 1 MHz: inside the band"),
+    (["--if", "455k", "--band", "540k:1700k", "--reject", "40"], "--reject needs --at"),
+    (["--if", "455k", "--band", "540k:1700k", "--reject", "40", "--at", "3M"], "--at 3 MHz: offset is beyond the band"),
+])
+def test_bad_input_one_line_exit_2(args, match, capsys):
+    rc, out, err = run(["plan", *args], capsys)
+    assert rc == 2
+    assert out == ""
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("sdrx: error: ") and match in lines[0]
