@@ -1,0 +1,197 @@
+"""SigMF recordings: a ``.sigmf-meta`` JSON file beside a ``.sigmf-data`` sample file.
+
+Read: ``global.core:datatype``, ``global.core:sample_rate``,
+``captures[0].core:frequency`` (the centre of an I/Q recording) and
+``captures[0].core:header_bytes`` (bytes to skip). Write: the fields the SigMF
+1.0.0 specification requires (``global`` with ``core:datatype`` and
+``core:version``; ``captures`` whose segments have ``core:sample_start``;
+``annotations``), plus sample rate, frequency, description, recorder and a
+SHA-512 of the data.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+from ..errors import CaptureError, ParameterError
+from .datatypes import parse_datatype
+from .meta import CaptureInfo
+from .raw import BinaryReader, binary_sample_count
+
+__all__ = ["SIGMF_VERSION", "sigmf_pair", "is_sigmf_path", "open_sigmf", "build_meta"]
+
+SIGMF_VERSION = "1.0.0"
+META_SUFFIX = ".sigmf-meta"
+DATA_SUFFIX = ".sigmf-data"
+
+
+def is_sigmf_path(path) -> bool:
+    """True when a path names either file of a SigMF pair."""
+    name = Path(path).name.lower()
+    return name.endswith(META_SUFFIX) or name.endswith(DATA_SUFFIX)
+
+
+def sigmf_pair(path) -> tuple:
+    """(meta path, data path) of the recording one of whose files is named.
+
+    Examples
+    --------
+    >>> [p.name for p in sigmf_pair("rec/coast.sigmf-data")]
+    ['coast.sigmf-meta', 'coast.sigmf-data']
+    """
+    p = Path(path)
+    stem = p.name[: -len(META_SUFFIX)]  # both suffixes have the same length
+    return p.with_name(stem + META_SUFFIX), p.with_name(stem + DATA_SUFFIX)
+
+
+def _number(value, key: str, meta_path: Path) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise CaptureError(f"{meta_path}: {key} must be a number, got {value!r}")
+    return float(value)
+
+
+def _load(meta_path: Path) -> dict:
+    try:
+        text = meta_path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise CaptureError(f"{meta_path}: no such file (the metadata of a SigMF recording)") from None
+    except UnicodeDecodeError:
+        raise CaptureError(f"{meta_path}: SigMF metadata is not UTF-8 JSON text") from None
+    try:
+        doc = json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise CaptureError(
+            f"{meta_path}: SigMF metadata is not valid JSON ({exc.msg} at line {exc.lineno} column {exc.colno})"
+        ) from None
+    if not isinstance(doc, dict) or not isinstance(doc.get("global"), dict):
+        raise CaptureError(f"{meta_path}: SigMF metadata lacks its 'global' object")
+    return doc
+
+
+def open_sigmf(path, *, center_hz=None) -> BinaryReader:
+    """Reader of a SigMF recording; either file of the pair may be named.
+
+    Parameters
+    ----------
+    path : str or Path
+        The ``.sigmf-meta`` or the ``.sigmf-data`` file.
+    center_hz : float or None
+        Fills in a missing ``core:frequency`` of an I/Q recording; it may not
+        contradict one that is present.
+
+    Returns
+    -------
+    BinaryReader
+        Its ``info.path`` is the ``.sigmf-meta`` file.
+
+    Raises
+    ------
+    CaptureError
+        Missing file; metadata not JSON; no or bad ``core:sample_rate`` or
+        ``core:datatype``; more than one channel; I/Q without a centre; data
+        size not a whole number of samples.
+    """
+    meta_path, data_path = sigmf_pair(path)
+    doc = _load(meta_path)
+    glob = doc["global"]
+    if "core:dataset" in glob:
+        data_path = meta_path.with_name(str(glob["core:dataset"]))
+    if "core:datatype" not in glob:
+        raise CaptureError(f"{meta_path}: global lacks core:datatype (the sample format, e.g. ci16_le)")
+    try:
+        dt = parse_datatype(glob["core:datatype"], f"{meta_path}: core:datatype")
+    except ParameterError as exc:
+        raise CaptureError(str(exc)) from None
+    if "core:sample_rate" not in glob:
+        raise CaptureError(f"{meta_path}: global lacks core:sample_rate (the sample rate in Hz)")
+    fs = _number(glob["core:sample_rate"], "core:sample_rate", meta_path)
+    if fs <= 0:
+        raise CaptureError(f"{meta_path}: core:sample_rate must be positive, got {glob['core:sample_rate']!r}")
+    channels = glob.get("core:num_channels", 1)
+    if channels != 1:
+        raise CaptureError(f"{meta_path}: core:num_channels is {channels!r}; sdrx reads single-channel recordings")
+    captures = doc.get("captures") or [{}]
+    if not isinstance(captures, list) or not all(isinstance(c, dict) for c in captures):
+        raise CaptureError(f"{meta_path}: captures must be a list of objects")
+    first = captures[0]
+    header = first.get("core:header_bytes", 0)
+    if isinstance(header, bool) or not isinstance(header, int) or header < 0:
+        raise CaptureError(f"{meta_path}: captures[0].core:header_bytes must be a whole number >= 0")
+    if any(c.get("core:header_bytes") for c in captures[1:]):
+        raise CaptureError(f"{meta_path}: header bytes inside later capture segments are not supported")
+    freq = first.get("core:frequency")
+    if freq is not None:
+        freq = _number(freq, "captures[0].core:frequency", meta_path)
+    if dt.is_complex:
+        if freq is None:
+            if center_hz is None:
+                raise CaptureError(
+                    f"{meta_path}: I/Q recording without captures[0].core:frequency; pass its centre with --center HZ"
+                )
+            freq = float(center_hz)
+        elif center_hz is not None and abs(float(center_hz) - freq) > 1e-6 * max(1.0, abs(freq)):
+            raise ParameterError(
+                f"--center {center_hz:g}: contradicts core:frequency {freq:g} in {meta_path}"
+            )
+        center = freq
+    else:
+        if center_hz is not None:
+            raise ParameterError(f"--center: applies to I/Q captures; {meta_path} holds real samples ({dt.name})")
+        center = None
+    n = binary_sample_count(data_path, dt, header)
+    info = CaptureInfo(path=meta_path, data_path=data_path, fs=fs, center_hz=center, kind=dt.kind,
+                       datatype=dt.name, samples=n)
+    return BinaryReader(info, dt, header)
+
+
+def build_meta(*, datatype: str, fs: float, center_hz=None, description=None, author=None,
+               datetime=None, sha512=None, annotations=(), extra_global=None, recorder=None) -> dict:
+    """The SigMF metadata document of a single-capture recording.
+
+    Returns
+    -------
+    dict
+        ``{"global": {...}, "captures": [{...}], "annotations": [...]}`` with
+        keys in a fixed order (so the JSON text is deterministic).
+
+    Notes
+    -----
+    SigMF 1.0.0: ``global`` requires ``core:datatype`` and ``core:version``;
+    each capture segment requires ``core:sample_start``; annotations require
+    ``core:sample_start`` and are sorted by it.
+
+    Examples
+    --------
+    >>> m = build_meta(datatype="ci16_le", fs=2.4e6, center_hz=1.1e6)
+    >>> m["global"]["core:version"], m["captures"][0]["core:frequency"]
+    ('1.0.0', 1100000.0)
+    """
+    from .. import __version__
+
+    glob = {"core:datatype": datatype, "core:version": SIGMF_VERSION, "core:sample_rate": float(fs),
+            "core:num_channels": 1}
+    if description is not None:
+        glob["core:description"] = str(description)
+    if author is not None:
+        glob["core:author"] = str(author)
+    glob["core:recorder"] = recorder if recorder is not None else f"sdrx {__version__}"
+    if sha512 is not None:
+        glob["core:sha512"] = sha512
+    for key, value in (extra_global or {}).items():
+        if key in glob:
+            raise ParameterError(f"meta.global: key {key!r} is set by the writer")
+        glob[key] = value
+    cap = {"core:sample_start": 0}
+    if center_hz is not None:
+        cap["core:frequency"] = float(center_hz)
+    if datetime is not None:
+        cap["core:datetime"] = str(datetime)
+    anns = []
+    for i, a in enumerate(annotations):
+        if not isinstance(a, dict) or "core:sample_start" not in a:
+            raise ParameterError(f"meta.annotations[{i}]: each annotation needs core:sample_start")
+        anns.append(dict(a))
+    anns.sort(key=lambda a: a["core:sample_start"])
+    return {"global": glob, "captures": [cap], "annotations": anns}

@@ -1,0 +1,213 @@
+"""A deterministic streaming WAV / RF64 writer (16-bit PCM or 32-bit float).
+
+sdrx writes WAV headers itself rather than through libsndfile because
+libsndfile stamps float files with a PEAK chunk holding the time of writing,
+and sdrx promises byte-identical outputs for identical inputs. Files are
+checked against soundfile (libsndfile) in the tests.
+
+Layout (little-endian, EBU Tech 3306 for RF64)::
+
+    RIFF <size> WAVE  [JUNK 28 | ds64 28]  [LIST INFO ...]  fmt  [fact]  data <size> samples
+
+When the final size is not known in advance a 28-byte ``JUNK`` chunk is
+reserved; at close, if the file exceeds the 4 GiB limit of RIFF sizes, the
+header is rewritten as ``RF64`` and ``JUNK`` becomes the ``ds64`` chunk that
+holds the 64-bit sizes. Otherwise the file stays a plain WAV.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import struct
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import OutputError, ParameterError
+from ..fileio import atomic_path
+
+__all__ = ["AtomicFile", "WavStream", "RIFF_LIMIT"]
+
+RIFF_LIMIT = 0xFFFFFFFF  # largest size a 32-bit RIFF size field holds
+_FORMATS = {"pcm16": (1, 16, np.dtype("<i2")), "float32": (3, 32, np.dtype("<f4"))}
+
+
+class _Abort(Exception):
+    pass
+
+
+class AtomicFile:
+    """A binary file written under a temporary name and renamed onto ``path`` by :meth:`commit`.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "x.bin"
+    >>> a = AtomicFile(p); _ = a.file.write(b"ok"); a.commit()
+    >>> p.read_bytes()
+    b'ok'
+    """
+
+    def __init__(self, path):
+        self.path = Path(path)
+        self._cm = atomic_path(self.path)
+        self.tmp = self._cm.__enter__()
+        try:
+            self.file = open(self.tmp, "wb")
+        except BaseException:
+            self._cm.__exit__(_Abort, _Abort(), None)
+            raise
+        self.done = False
+
+    def commit(self) -> None:
+        """Close and rename onto the final path."""
+        if self.done:
+            return
+        self.done = True
+        self.file.close()
+        self._cm.__exit__(None, None, None)
+
+    def abort(self) -> None:
+        """Close and remove the temporary file; the final path is left as it was."""
+        if self.done:
+            return
+        self.done = True
+        self.file.close()
+        with contextlib.suppress(_Abort):
+            self._cm.__exit__(_Abort, _Abort(), None)
+
+
+def _info_chunk(tags: dict) -> bytes:
+    body = b""
+    for key, text in tags.items():
+        data = str(text).encode("utf-8") + b"\0"
+        if len(data) % 2:
+            data += b"\0"
+        body += key.encode("ascii") + struct.pack("<I", len(data)) + data
+    if not body:
+        return b""
+    body = b"INFO" + body
+    return b"LIST" + struct.pack("<I", len(body)) + body
+
+
+class WavStream:
+    """Write interleaved frames to ``path`` as WAV (or RF64 when over 4 GiB), atomically.
+
+    Parameters
+    ----------
+    path : Path
+        Final path (validated by the caller with ``check_output``).
+    fs : float
+        Sample rate; must be a whole number of Hz (WAV stores an integer).
+    channels : int
+        1 or 2.
+    sample_format : str
+        ``"pcm16"`` or ``"float32"``.
+    expected_frames : int or None
+        Frames that will be written, when known: picks plain WAV or RF64 at
+        once. None reserves room to decide at close from the actual size.
+    info : dict, optional
+        RIFF INFO tags (``ICMT`` comment, ``IART`` artist, ``ISFT`` software,
+        ``ICRD`` date) written in a LIST chunk before the data.
+
+    Raises
+    ------
+    ParameterError
+        Sample rate not a positive whole number, bad format or channels.
+    OutputError
+        More data written than a plain WAV can hold when ``expected_frames``
+        said it would fit.
+    """
+
+    def __init__(self, path, fs, channels: int, sample_format: str, *, expected_frames=None, info=None):
+        if sample_format not in _FORMATS:
+            raise ParameterError(f"sample_format: {sample_format!r} not one of {', '.join(_FORMATS)}")
+        if channels not in (1, 2):
+            raise ParameterError(f"channels: must be 1 or 2, got {channels!r}")
+        rate = float(fs)
+        if not (rate > 0 and rate == round(rate) and rate <= 0xFFFFFFFF):
+            raise ParameterError(f"{path}: WAV needs a whole positive number of samples per second, got {fs!r}")
+        self.path = Path(path)
+        self.fs = int(round(rate))
+        self.channels = channels
+        self.tag, self.bits, self.dtype = _FORMATS[sample_format]
+        self.block_align = channels * self.bits // 8
+        self.frames = 0
+        self._info = _info_chunk(info or {})
+        if expected_frames is None:
+            self._layout = "reserve"
+        else:
+            big = self._riff_size(int(expected_frames) * self.block_align, reserve=False) > RIFF_LIMIT
+            self._layout = "rf64" if big else "wav"
+        self._header_len = len(self._header(0))
+        self._file = AtomicFile(self.path)
+        self._file.file.write(self._header(0))
+
+    # --- header ----------------------------------------------------------------
+    def _fmt(self) -> bytes:
+        body = struct.pack("<HHIIHH", self.tag, self.channels, self.fs, self.fs * self.block_align,
+                           self.block_align, self.bits)
+        if self.tag == 3:
+            body += struct.pack("<H", 0)
+        return b"fmt " + struct.pack("<I", len(body)) + body
+
+    def _fixed_len(self, reserve: bool) -> int:
+        n = 12 + (36 if reserve else 0) + len(self._info) + len(self._fmt()) + 8
+        if self.tag == 3:
+            n += 12
+        return n
+
+    def _riff_size(self, data_bytes: int, reserve: bool) -> int:
+        return self._fixed_len(reserve) - 8 + data_bytes
+
+    def _header(self, data_bytes: int, final: bool = False) -> bytes:
+        frames = data_bytes // self.block_align
+        reserve = self._layout in ("reserve", "rf64")
+        riff_size = self._riff_size(data_bytes, reserve)
+        rf64 = self._layout == "rf64" or (final and self._layout == "reserve" and riff_size > RIFF_LIMIT)
+        if rf64:
+            out = b"RF64" + struct.pack("<I", 0xFFFFFFFF) + b"WAVE"
+            out += b"ds64" + struct.pack("<I", 28) + struct.pack("<QQQI", riff_size, data_bytes, frames, 0)
+        else:
+            out = b"RIFF" + struct.pack("<I", riff_size) + b"WAVE"
+            if reserve:
+                out += b"JUNK" + struct.pack("<I", 28) + bytes(28)
+        out += self._info + self._fmt()
+        if self.tag == 3:
+            out += b"fact" + struct.pack("<II", 4, 0xFFFFFFFF if rf64 else frames)
+        out += b"data" + struct.pack("<I", 0xFFFFFFFF if rf64 else data_bytes)
+        return out
+
+    # --- data --------------------------------------------------------------------
+    def write_codes(self, codes: np.ndarray) -> None:
+        """Append interleaved codes of the file's sample type (int16 or float32 little-endian)."""
+        if self._file.done:
+            raise OutputError(f"{self.path}: writer is closed")
+        c = np.ascontiguousarray(codes, dtype=self.dtype)
+        if c.size % self.channels:
+            raise ParameterError(f"{self.path}: {c.size} values are not whole frames of {self.channels} channels")
+        new_frames = self.frames + c.size // self.channels
+        if self._layout == "wav" and self._riff_size(new_frames * self.block_align, False) > RIFF_LIMIT:
+            raise OutputError(
+                f"{self.path}: more samples than announced; a plain WAV cannot exceed 4 GiB"
+            )
+        self._file.file.write(memoryview(c).cast("B"))
+        self.frames = new_frames
+
+    def close(self) -> None:
+        """Finish the header and rename the file into place."""
+        if self._file.done:
+            return
+        try:
+            header = self._header(self.frames * self.block_align, final=True)
+            assert len(header) == self._header_len
+            self._file.file.seek(0)
+            self._file.file.write(header)
+        except BaseException:
+            self._file.abort()
+            raise
+        self._file.commit()
+
+    def abort(self) -> None:
+        """Remove the temporary file; nothing appears under the final name."""
+        self._file.abort()
