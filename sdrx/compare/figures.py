@@ -1,0 +1,254 @@
+"""Figures shown side by side on the comparison page.
+
+Designed figures come from the chain design (its RF-to-IF response, the same
+objects the receiver runs); measured figures come from each output's audio.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy import signal
+
+from ..units import db10, db20
+
+__all__ = [
+    "selectivity_curve",
+    "crossing_width",
+    "designed_figures",
+    "audio_bandwidth_hz",
+    "sinad_db",
+]
+
+#: RF offsets of the selectivity grid: ±150 kHz in 25 Hz steps
+_SPAN_HZ = 150e3
+_STEP_HZ = 25.0
+
+
+def selectivity_curve(design, tune_hz: float, offsets_hz=None):
+    """Relative RF selectivity of a chain: dB at ``tune_hz + offsets_hz`` re the tune.
+
+    Parameters
+    ----------
+    design : ChainDesign
+        Anything with ``rf_response(f_hz, tune_hz)`` (complex, antenna to IF output).
+    tune_hz : float
+        The station's carrier frequency.
+    offsets_hz : array_like, optional
+        Offsets from the tune; default ±150 kHz in 25 Hz steps.
+
+    Returns
+    -------
+    (offsets_hz, response_db) : tuple of ndarray
+
+    Notes
+    -----
+    ``20·log10(|H(f_t + Δf)| / |H(f_t)|)``, H the design's RF response (single-signal
+    selectivity, AGC off: ITU-R SM.332).
+    """
+    if offsets_hz is None:
+        n = int(round(_SPAN_HZ / _STEP_HZ))
+        offsets_hz = np.arange(-n, n + 1) * _STEP_HZ
+    off = np.asarray(offsets_hz, dtype=float)
+    h = np.asarray(design.rf_response(tune_hz + off, tune_hz), dtype=complex)
+    h0 = complex(np.asarray(design.rf_response(np.array([tune_hz], dtype=float), tune_hz)).reshape(-1)[0])
+    return off, db20(h / h0)
+
+
+def _edge(off, db, level_db, side):
+    """Offset where the curve first falls to ``level_db`` going out from 0 on ``side`` (+1/-1)."""
+    centre = int(np.argmin(np.abs(off)))
+    idx = np.arange(centre, off.size) if side > 0 else np.arange(centre, -1, -1)
+    vals = db[idx]
+    below = np.nonzero(vals <= level_db)[0]
+    if below.size == 0:
+        return None
+    j = below[0]
+    if j == 0:
+        return float(off[idx[0]])
+    i0, i1 = idx[j - 1], idx[j]
+    d0, d1 = db[i0], db[i1]
+    frac = 0.0 if d0 == d1 or not np.isfinite(d1) else (d0 - level_db) / (d0 - d1)
+    return float(off[i0] + frac * (off[i1] - off[i0]))
+
+
+def crossing_width(offsets_hz, response_db, level_db: float):
+    """Full width of a selectivity curve at ``level_db`` (e.g. −6), Hz, or None.
+
+    The first crossing on each side of the tune, linearly interpolated; None
+    when the curve does not fall that far within the grid.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> off = np.linspace(-10e3, 10e3, 2001)
+    >>> round(crossing_width(off, -np.abs(off) / 1e3, -6.0))
+    12000
+    """
+    off = np.asarray(offsets_hz, dtype=float)
+    db = np.asarray(response_db, dtype=float)
+    hi = _edge(off, db, level_db, +1)
+    lo = _edge(off, db, level_db, -1)
+    if hi is None or lo is None:
+        return None
+    return hi - lo
+
+
+def _rel_db(design, f_hz, tune_hz):
+    h = np.asarray(design.rf_response(np.array([f_hz, tune_hz], dtype=float), tune_hz), dtype=complex)
+    return float(db20(h[0] / h[1]))
+
+
+def designed_figures(design, tune_hz: float, spacing_hz: float) -> dict:
+    """Bandwidths and rejections of a chain design at one tuning.
+
+    Parameters
+    ----------
+    design : ChainDesign
+        With ``rf_response(f_hz, tune_hz)`` and ``image_hz(tune_hz)``.
+    tune_hz : float
+        The station's carrier frequency.
+    spacing_hz : float
+        Channel spacing for the adjacent-channel figures.
+
+    Returns
+    -------
+    dict
+        ``bandwidth_6db_hz``, ``bandwidth_60db_hz`` (None if not reached within
+        ±150 kHz), ``shape_factor`` (60 dB / 6 dB width), ``adjacent_rejection_db``
+        {``lower``, ``upper``, ``worst``}, ``image_hz``, ``image_rejection_db``.
+
+    Notes
+    -----
+    Rejection is the response at the tune over the response at the other
+    frequency, in dB, equal inputs (image rejection ratio: Federal Standard
+    1037C); the adjacent channels are ``tune ± spacing``.
+    """
+    off, db = selectivity_curve(design, tune_hz)
+    bw6 = crossing_width(off, db, -6.0)
+    bw60 = crossing_width(off, db, -60.0)
+    lower = -_rel_db(design, tune_hz - spacing_hz, tune_hz)
+    upper = -_rel_db(design, tune_hz + spacing_hz, tune_hz)
+    image_hz = float(design.image_hz(tune_hz))
+    image = -_rel_db(design, image_hz, tune_hz)
+    return {
+        "bandwidth_6db_hz": bw6,
+        "bandwidth_60db_hz": bw60,
+        "shape_factor": (bw60 / bw6) if (bw6 and bw60) else None,
+        "adjacent_rejection_db": {"lower": lower, "upper": upper, "worst": min(lower, upper)},
+        "spacing_hz": float(spacing_hz),
+        "image_hz": image_hz,
+        "image_rejection_db": image,
+    }
+
+
+def _long_term_spectrum(x, fs):
+    nper = int(2 ** np.ceil(np.log2(fs / 25.0)))
+    nper = max(16, min(nper, x.size))
+    f, p = signal.welch(x - np.mean(x), fs=fs, window="hann", nperseg=nper, noverlap=nper // 2,
+                        detrend=False, scaling="density")
+    kernel = np.ones(5) / 5.0
+    return f, np.convolve(p, kernel, mode="same")
+
+
+def audio_bandwidth_hz(x, fs: float, *, drop_db: float = 20.0, ref_band_hz=(300.0, 1000.0)):
+    """Audio bandwidth of an output: where its long-term spectrum falls ``drop_db`` below mid-band.
+
+    Parameters
+    ----------
+    x : array_like
+        Mono audio.
+    fs : float
+        Sample rate, Hz.
+    drop_db : float
+        How far below the reference the edge is (default 20 dB).
+    ref_band_hz : (float, float)
+        Band whose mean power density is the reference (default 300 Hz–1 kHz).
+
+    Returns
+    -------
+    float or None
+        The first frequency above the reference band where the spectrum is
+        ``drop_db`` below the reference (linear interpolation between bins);
+        None if it never falls that far below fs/2.
+
+    Notes
+    -----
+    Long-term spectrum: Welch average, Hann window, segments of 2^ceil(log2(fs/25))
+    samples (bins ≤ 25 Hz), 50 % overlap, smoothed over 5 bins. The figure
+    describes the output's content, so it is meaningful on broadband programme
+    (speech-like, music-like, noise); on a single tone it measures the noise.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from scipy import signal
+    >>> noise = np.random.default_rng(0).standard_normal(96000)
+    >>> sos = signal.butter(8, 3000, fs=48000, output="sos")
+    >>> 3000 < audio_bandwidth_hz(signal.sosfilt(sos, noise), 48000.0) < 4000
+    True
+    """
+    a = np.asarray(x, dtype=np.float64)
+    f, p = _long_term_spectrum(a, fs)
+    band = (f >= ref_band_hz[0]) & (f <= ref_band_hz[1])
+    ref_db = float(db10(np.mean(p[band])))
+    level = ref_db - drop_db
+    pdb = db10(np.maximum(p, 1e-300))
+    above = np.nonzero(f > ref_band_hz[1])[0]
+    below = above[pdb[above] <= level]
+    if below.size == 0:
+        return None
+    j = below[0]
+    i = j - 1
+    d0, d1 = pdb[i], pdb[j]
+    frac = 0.0 if d0 == d1 else (d0 - level) / (d0 - d1)
+    return float(f[i] + frac * (f[j] - f[i]))
+
+
+def sinad_db(x, fs: float, tone_hz: float, *, skip_s: float = 0.25) -> float:
+    """SINAD of a single-tone output, dB: total power over power with the tone removed.
+
+    Parameters
+    ----------
+    x : array_like
+        Mono audio carrying one test tone.
+    fs : float
+        Sample rate, Hz.
+    tone_hz : float
+        The tone's frequency (from the capture's truth sidecar).
+    skip_s : float
+        Start-up (AGC settling, filter transients) left out, seconds.
+
+    Returns
+    -------
+    float
+
+    Notes
+    -----
+    ``SINAD = 10·log10(P_total / (P_total − P_tone))`` with the mean removed
+    (common practice, receiver measurement texts). The tone is removed by a
+    least-squares fit of ``a·cos(ωn) + b·sin(ωn)`` at the known frequency: an
+    ideal notch of zero width that leaves noise and distortion in place.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> n = np.arange(48000)
+    >>> rng = np.random.default_rng(0)
+    >>> x = np.sin(2 * np.pi * 1000 * n / 48000) + 0.01 * rng.standard_normal(n.size)
+    >>> round(sinad_db(x, 48000.0, 1000.0))
+    37
+    """
+    a = np.asarray(x, dtype=np.float64)
+    first = min(int(round(skip_s * fs)), a.size // 2)
+    a = a[first:]
+    a = a - a.mean()
+    n = np.arange(a.size)
+    w = 2 * np.pi * tone_hz / fs
+    basis = np.column_stack([np.cos(w * n), np.sin(w * n)])
+    coef, *_ = np.linalg.lstsq(basis, a, rcond=None)
+    residual = a - basis @ coef
+    total = float(np.mean(a * a))
+    rest = float(np.mean(residual * residual))
+    if rest <= 0:
+        return float("inf")
+    return float(db10(total / rest))

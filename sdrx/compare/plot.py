@@ -1,0 +1,68 @@
+"""Selectivity curves of every compared chain on one plot (matplotlib, Agg)."""
+
+from __future__ import annotations
+
+import io
+
+import numpy as np
+
+__all__ = ["selectivity_png"]
+
+
+def selectivity_png(curves, *, tune_hz: float, spacing_hz: float | None = None,
+                    span_hz: float = 30e3, floor_db: float = -100.0) -> bytes:
+    """PNG of relative selectivity curves, one line per chain.
+
+    Parameters
+    ----------
+    curves : sequence of (label, offsets_hz, response_db)
+        Relative RF response of each chain about the tune
+        (:func:`sdrx.compare.figures.selectivity_curve`).
+    tune_hz : float
+        The tune, for the title.
+    spacing_hz : float, optional
+        Channel spacing: dotted lines at the adjacent channels.
+    span_hz : float
+        Half-width of the plot, Hz.
+    floor_db : float
+        Bottom of the plot, dB.
+
+    Returns
+    -------
+    bytes
+        PNG file contents (no timestamp, so reruns give the same bytes).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> off = np.linspace(-30e3, 30e3, 601)
+    >>> selectivity_png([("a", off, -np.abs(off) / 500)], tune_hz=1e6)[:4]
+    b'\\x89PNG'
+    """
+    import matplotlib
+
+    matplotlib.use("Agg", force=False)
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(8, 4.2), dpi=100)
+    ax = fig.add_subplot(1, 1, 1)
+    for label, off, db in curves:
+        off = np.asarray(off, dtype=float)
+        keep = np.abs(off) <= span_hz
+        ax.plot(off[keep] / 1e3, np.maximum(np.asarray(db, dtype=float)[keep], floor_db - 10), label=str(label))
+    if spacing_hz:
+        for s in (-spacing_hz, spacing_hz):
+            ax.axvline(s / 1e3, color="0.5", linestyle=":", linewidth=1)
+    for lvl in (-6.0, -60.0):
+        ax.axhline(lvl, color="0.75", linestyle="--", linewidth=0.8)
+    ax.set_xlim(-span_hz / 1e3, span_hz / 1e3)
+    ax.set_ylim(floor_db, 5)
+    ax.set_xlabel(f"offset from tune ({tune_hz / 1e3:g} kHz), kHz")
+    ax.set_ylabel("response re tune, dB")
+    ax.set_title("Selectivity (designed, AGC off)")
+    ax.grid(True, alpha=0.3)
+    ax.legend(loc="lower center", fontsize=8)
+    fig.tight_layout()
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", metadata={"Software": None})
+    return buf.getvalue()

@@ -1,0 +1,596 @@
+"""``sdrx compare``: the same excerpt through several chains, fairly, on one page.
+
+Flow: parse and design every spec → validate the excerpt and the output folder
+→ run :func:`sdrx.run.receive` for each spec into a temporary folder → align
+the outputs in time (cross-correlation against the first) → match their
+integrated loudness (ITU-R BS.1770, pyloudnorm) without clipping → figures →
+write ``<label>.wav`` per spec, ``compare.json``, ``blind-key.json`` (with
+``--blind``) and ``index.html`` into the output folder.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import tempfile
+from dataclasses import dataclass
+from fractions import Fraction
+from pathlib import Path
+from typing import Sequence
+
+import numpy as np
+
+from ..errors import OutputError, ParameterError
+from ..fileio import atomic_path, same_file
+from ..units import format_frequency, parse_frequency, parse_seconds
+from . import blind as blind_mod
+from .align import align
+from .figures import audio_bandwidth_hz, designed_figures, selectivity_curve, sinad_db
+from .loudness import integrated_loudness, match_loudness
+
+__all__ = [
+    "MARKER",
+    "MAX_SECONDS",
+    "DEFAULT_SECONDS",
+    "MIN_SECONDS",
+    "SpecChoice",
+    "safe_label",
+    "parse_spec_args",
+    "check_out_dir",
+    "compare",
+]
+
+#: marker file that says a folder holds a comparison written by sdrx
+MARKER = ".sdrx-compare"
+#: longest excerpt accepted (every output is held in memory for alignment and loudness)
+MAX_SECONDS = 120.0
+#: excerpt length when --duration is not given (or the rest of the capture, if shorter)
+DEFAULT_SECONDS = 30.0
+#: shortest excerpt (loudness needs several 400 ms blocks)
+MIN_SECONDS = 1.0
+#: peak limit of the loudness-matched outputs
+PEAK_LIMIT_DBFS = -1.0
+#: largest delay difference between outputs that alignment searches
+MAX_LAG_S = 0.05
+KEY_FILE = "blind-key.json"
+PAGE_FILE = "index.html"
+JSON_FILE = "compare.json"
+
+_UNSAFE = re.compile(r"[^A-Za-z0-9._-]+")
+
+
+def safe_label(text: str, fallback: str = "spec") -> str:
+    """A label usable as a file name on any system: letters, digits, ``.``, ``_``, ``-``.
+
+    Runs of other characters become one ``-``; leading/trailing ``-`` and ``.``
+    are dropped; at most 48 characters.
+
+    Examples
+    --------
+    >>> safe_label("my wide/IF filter")
+    'my-wide-IF-filter'
+    >>> safe_label("<script>alert(1)</script>")
+    'script-alert-1-script'
+    >>> safe_label("..", "spec-2")
+    'spec-2'
+    """
+    s = _UNSAFE.sub("-", str(text)).strip("-.")[:48].strip("-.")
+    return s or fallback
+
+
+@dataclass(frozen=True)
+class SpecChoice:
+    """One spec argument of ``sdrx compare``.
+
+    Attributes
+    ----------
+    arg : str
+        The argument as given.
+    spec : str
+        The preset name or spec file path.
+    label : str
+        File-safe label (``<label>.wav``).
+    identity : tuple
+        ``("preset", name)`` or ``("file", resolved path)``: what makes two specs the same.
+    """
+
+    arg: str
+    spec: str
+    label: str
+    identity: tuple
+
+
+def parse_spec_args(args: Sequence[str]) -> list:
+    """Split ``SPEC`` or ``SPEC@LABEL`` arguments and check they can be told apart.
+
+    Parameters
+    ----------
+    args : sequence of str
+        Preset names or TOML paths, each optionally followed by ``@LABEL``. An
+        argument that names an existing file is taken whole, even if it holds ``@``.
+
+    Returns
+    -------
+    list of SpecChoice
+
+    Raises
+    ------
+    ParameterError
+        Fewer than two specs; the same spec twice without distinct labels (the
+        message suggests a label); two labels equal apart from case.
+
+    Examples
+    --------
+    >>> [c.label for c in parse_spec_args(["wide", "medium@medium-a", "medium@medium-b"])]
+    ['wide', 'medium-a', 'medium-b']
+    """
+    args = [str(a) for a in args]
+    if len(args) < 2:
+        got = f"got 1: {args[0]}" if args else "got none"
+        raise ParameterError(
+            f"SPEC: compare needs at least two specs ({got}); e.g. sdrx compare CAPTURE --tune F wide medium -o DIR"
+        )
+    out = []
+    for i, arg in enumerate(args):
+        spec, label_text = arg, None
+        if not Path(arg).is_file() and "@" in arg:
+            spec, label_text = arg.rsplit("@", 1)
+            if not spec or not label_text:
+                raise ParameterError(f"SPEC {arg}: write SPEC@LABEL with both parts, e.g. medium@medium-2")
+        p = Path(spec)
+        if p.is_file() or p.suffix.lower() == ".toml":
+            identity = ("file", str(p.resolve()))
+            default = p.stem
+        else:
+            identity = ("preset", spec)
+            default = spec
+        label = safe_label(label_text if label_text is not None else default, f"spec-{i + 1}")
+        out.append(SpecChoice(arg, spec, label, identity))
+    for j, c in enumerate(out):
+        for i in range(j):
+            o = out[i]
+            if c.identity == o.identity and c.label.lower() == o.label.lower():
+                raise ParameterError(
+                    f"SPEC {c.arg}: the same spec is given twice (specs {i + 1} and {j + 1}); to compare a spec "
+                    f"with itself give the copy a label, e.g. {c.spec}@{c.label}-2"
+                )
+            if c.label.lower() == o.label.lower():
+                raise ParameterError(
+                    f"SPEC {c.arg}: label {c.label} is also the label of spec {i + 1} ({o.arg}); "
+                    f"give one a label of its own, e.g. {c.spec}@{c.label}-2"
+                )
+    return out
+
+
+def _marker_files(d: Path):
+    m = d / MARKER
+    if not m.is_file():
+        return None
+    try:
+        raw = json.loads(m.read_text(encoding="utf-8"))
+        files = raw["files"]
+    except (ValueError, KeyError, TypeError, OSError):
+        return None
+    if not isinstance(files, list) or not all(isinstance(f, str) for f in files):
+        return None
+    return set(files)
+
+
+def check_out_dir(out_dir, *, force: bool = False) -> set:
+    """Check the output folder before any work; return the files an earlier comparison left.
+
+    Parameters
+    ----------
+    out_dir : str or Path
+        The folder given with ``-o``.
+    force : bool
+        Write even though the folder is not empty.
+
+    Returns
+    -------
+    set of str
+        Names listed in the folder's marker file (empty for a new or empty folder).
+
+    Raises
+    ------
+    OutputError
+        A file rather than a folder; a parent folder that does not exist; a
+        non-empty folder without ``force`` (the message says whether it holds
+        files not made by sdrx).
+
+    Notes
+    -----
+    sdrx marks every comparison folder with :data:`MARKER` (JSON listing the
+    files it wrote). With ``force`` sdrx writes its files and removes the ones
+    an earlier comparison listed that this one does not write; it never
+    removes files it did not make.
+    """
+    d = Path(out_dir)
+    if d.exists() and not d.is_dir():
+        raise OutputError(f"-o {d}: is a file; give a folder for the comparison")
+    if not d.exists():
+        parent = d.parent if str(d.parent) else Path(".")
+        if not parent.is_dir():
+            raise OutputError(f"-o {d}: folder {parent} does not exist")
+        return set()
+    entries = sorted(p.name for p in d.iterdir())
+    if not entries:
+        return set()
+    ours = _marker_files(d)
+    known = (ours or set()) | ({MARKER} if ours is not None else set())
+    foreign = [e for e in entries if e not in known]
+    if foreign and not force:
+        shown = ", ".join(foreign[:3]) + (", ..." if len(foreign) > 3 else "")
+        raise OutputError(
+            f"-o {d}: holds files not made by sdrx ({shown}); choose a new or empty folder, "
+            "or pass --force to write beside them"
+        )
+    if not force:
+        raise OutputError(f"-o {d}: holds an earlier comparison; pass --force to replace it")
+    return ours or set()
+
+
+def _resample(x: np.ndarray, fs_in: float, fs_out: float) -> np.ndarray:
+    if fs_in == fs_out:
+        return x
+    from scipy.signal import resample_poly
+
+    ratio = Fraction(fs_out / fs_in).limit_denominator(1000)
+    return resample_poly(x, ratio.numerator, ratio.denominator)
+
+
+def _truth_tone(capture_path: Path, tune_hz: float):
+    """Single tone frequency of the station at ``tune_hz`` from the truth sidecar, or None."""
+    from .truth import single_tone_hz
+
+    return single_tone_hz(capture_path, tune_hz)
+
+
+def _write_wav(path: Path, q: np.ndarray, fs: float) -> None:
+    import soundfile as sf
+
+    with atomic_path(path) as tmp:
+        sf.write(str(tmp), q, int(round(fs)), subtype="PCM_16", format="WAV")
+
+
+def _write_text(path: Path, text: str) -> None:
+    with atomic_path(path) as tmp:
+        tmp.write_text(text, encoding="utf-8")
+
+
+def _plain(obj):
+    """JSON-ready copy: numpy scalars to Python, non-finite floats to None, tuples to lists."""
+    if isinstance(obj, dict):
+        return {str(k): _plain(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_plain(v) for v in obj]
+    if isinstance(obj, (bool, np.bool_)):
+        return bool(obj)
+    if isinstance(obj, (int, np.integer)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        return float(obj) if np.isfinite(obj) else None
+    if isinstance(obj, Path):
+        return str(obj)
+    return obj
+
+
+def _json_text(obj) -> str:
+    return json.dumps(_plain(obj), indent=2, allow_nan=False) + "\n"
+
+
+def _finite_or_none(v):
+    return None if v is None or not np.isfinite(v) else float(v)
+
+
+def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, duration_s=None,
+            blind: int = 0, seed=None, spacing_hz=10e3, path: str = "fast", force: bool = False,
+            progress=None, datatype=None, fs=None, center_hz=None) -> dict:
+    """Run several chains over one excerpt and write a fair listening comparison.
+
+    Parameters
+    ----------
+    capture : str or Path
+        The capture (any format :func:`sdrx.capture.open_capture` reads).
+    tune_hz : float or str
+        The station's carrier frequency.
+    specs : sequence of str
+        At least two preset names or TOML paths, each optionally ``SPEC@LABEL``.
+    out_dir : str or Path
+        Output folder (created if missing; see :func:`check_out_dir`).
+    start_s, duration_s : float or str
+        The excerpt; ``duration_s`` None means the rest of the capture, at most
+        :data:`DEFAULT_SECONDS`. At most :data:`MAX_SECONDS`, at least :data:`MIN_SECONDS`.
+    blind : int
+        Number of A/B/X trials (0: none).
+    seed : int or None
+        Seed for drawing X; None draws a fresh one (written only to the key file).
+    spacing_hz : float or str
+        Channel spacing for the adjacent-channel figures.
+    path : {"fast", "exact"}
+        Execution path of the receiver.
+    force : bool
+        Write into a folder that is not empty.
+    progress : callable, optional
+        ``progress(done, total)`` in capture samples over all specs.
+    datatype, fs, center_hz
+        Passed to :func:`sdrx.capture.open_capture` (raw files, I/Q WAV).
+
+    Returns
+    -------
+    dict
+        The contents of ``compare.json``.
+
+    Raises
+    ------
+    ParameterError, CaptureError, OutputError
+        Bad specs, labels, excerpt or folder; nothing is written then.
+
+    Notes
+    -----
+    Alignment: integer lag at the peak of the cross-correlation of each output
+    with the first (:func:`sdrx.compare.align.align`), outputs cut to their
+    common span. Loudness: target ``T = min_i(L_i − 1 dBFS − P_i)`` (L integrated
+    loudness by ITU-R BS.1770 via pyloudnorm, P sample peak), gain ``T − L_i``:
+    all outputs at one loudness, none above −1 dBFS sample peak.
+    """
+    from ..capture import open_capture
+    from ..chain import design_chain
+    from ..run import receive
+
+    tune = parse_frequency(tune_hz, "--tune")
+    spacing = parse_frequency(spacing_hz, "--spacing")
+    if spacing <= 0:
+        raise ParameterError(f"--spacing: {spacing_hz!r} must be above 0 (e.g. 9k or 10k)")
+    choices = parse_spec_args(specs)
+    designs = []
+    for i, c in enumerate(choices):
+        try:
+            designs.append(design_chain(c.spec))
+        except ParameterError as exc:
+            msg = str(exc)
+            if msg.startswith("--chain "):
+                msg = msg[len("--chain "):]
+            raise ParameterError(f"SPEC {i + 1} ({c.arg}): {msg}") from None
+    plan_n = blind
+    if isinstance(plan_n, bool) or not isinstance(plan_n, (int, np.integer)):
+        raise ParameterError(f"--blind: {blind!r}; give a whole number of trials")
+
+    reader = open_capture(capture, datatype=datatype, fs=fs, center_hz=center_hz)
+    info = reader.info
+    start = parse_seconds(start_s, "--start")
+    first, avail = reader.sample_range(start, None)  # CaptureError when the start is past the end
+    rest_s = avail / info.fs
+    if duration_s is None:
+        duration = min(rest_s, DEFAULT_SECONDS)
+    else:
+        duration = parse_seconds(duration_s, "--duration", allow_zero=False)
+        if duration > MAX_SECONDS:
+            raise ParameterError(
+                f"--duration: {duration:g} s is longer than compare allows ({MAX_SECONDS:g} s); choose a shorter excerpt"
+            )
+        if start + duration > info.seconds + 0.5 / info.fs:
+            raise ParameterError(
+                f"--duration: the excerpt {start:g} s + {duration:g} s runs past the end of {info.path} "
+                f"({info.seconds:.6g} s)"
+            )
+    if duration < MIN_SECONDS:
+        raise ParameterError(
+            f"--duration: the excerpt is {duration:.3g} s; compare needs at least {MIN_SECONDS:g} s "
+            f"({info.path} is {info.seconds:.6g} s long, --start {start:g})"
+        )
+    if seed is not None:
+        if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)):
+            raise ParameterError(f"--seed: {seed!r}; give a whole number >= 0")
+    plan = blind_mod.plan_trials(plan_n, len(choices), blind_mod.fresh_seed() if seed is None else int(seed))
+
+    out = Path(out_dir)
+    old_files = check_out_dir(out, force=force)
+    labels = [c.label for c in choices]
+    wav_names = [f"{lab}.wav" for lab in labels]
+    new_files = wav_names + [JSON_FILE, PAGE_FILE] + ([KEY_FILE] if plan.n else [])
+    inputs = [info.path, info.data_path] + [Path(c.spec) for c in choices if c.identity[0] == "file"]
+    for name in new_files:
+        target = out / name
+        if target.is_dir():
+            raise OutputError(f"-o {out}: {name} is a folder; sdrx would write a file of that name")
+        if any(same_file(target, src) for src in inputs):
+            raise OutputError(f"-o {out}: {name} would overwrite an input; choose another folder")
+
+    # ---- receive every spec into a temporary folder --------------------------------------
+    import soundfile as sf
+
+    n_capture = int(round(duration * info.fs))
+    total = n_capture * len(choices)
+    raw, rates, summaries = [], [], []
+    with tempfile.TemporaryDirectory(prefix="sdrx-compare-") as tmpdir:
+        for i, (c, d) in enumerate(zip(choices, designs)):
+            def sub(done, _total, _i=i):
+                if progress is not None:
+                    progress(min(total, _i * n_capture + int(done)), total)
+
+            wav = Path(tmpdir) / f"{i}.wav"
+            summary = receive(capture, tune, d, wav, path=path, start_s=start, duration_s=duration,
+                              float_output=True, force=True, progress=sub if progress else None,
+                              datatype=datatype, fs=fs, center_hz=center_hz)
+            audio, afs = sf.read(str(wav), dtype="float64", always_2d=False)
+            if audio.ndim != 1:
+                audio = audio[:, 0]
+            raw.append(audio)
+            rates.append(float(afs))
+            summaries.append(summary)
+    return write_comparison(
+        out, choices, designs, raw, rates, plan=plan, tune_hz=tune, spacing_hz=spacing,
+        summaries=summaries, tone_hz=_truth_tone(Path(info.path), tune), old_files=old_files,
+        header={
+            "capture": info.to_json(),
+            "excerpt": {"start_s": start, "duration_s": duration},
+            "path": path,
+            "subtitle": (f"Capture {info.path} ({info.kind}, {format_frequency(info.fs)} rate); excerpt from "
+                         f"{start:g} s, {duration:g} s; {path} path; channel spacing {format_frequency(spacing)}."),
+            "capture_name": Path(info.path).name,
+        },
+        progress_done=(lambda: progress(total, total)) if progress is not None else None,
+    )
+
+
+def write_comparison(out_dir, choices, designs, raw, rates, *, plan, tune_hz: float, spacing_hz: float,
+                     header: dict, summaries=None, tone_hz=None, old_files=frozenset(),
+                     progress_done=None) -> dict:
+    """Align, loudness-match and write a comparison of outputs that are already computed.
+
+    The second half of :func:`compare`, separate so that it can be driven with
+    audio made otherwise (tests, or outputs of a receiver run elsewhere).
+
+    Parameters
+    ----------
+    out_dir : Path
+        Output folder, already checked with :func:`check_out_dir`.
+    choices : list of SpecChoice
+        From :func:`parse_spec_args`.
+    designs : list of ChainDesign
+        One per choice (for the designed figures and the plot).
+    raw : list of ndarray
+        Each chain's mono audio of the same excerpt.
+    rates : list of float
+        Their sample rates (resampled to the highest when they differ).
+    plan : BlindPlan
+        The trials (``plan.n`` may be 0).
+    tune_hz, spacing_hz : float
+        Tune and channel spacing.
+    header : dict
+        ``capture`` (dict), ``excerpt`` (dict), ``path`` (str), ``subtitle`` (str),
+        ``capture_name`` (str), copied into ``compare.json`` and the page.
+    summaries : list of dict, optional
+        Receiver run summaries (a few of their figures are kept).
+    tone_hz : float, optional
+        The station's single test tone (truth sidecar), for SINAD.
+    old_files : set of str
+        Files an earlier comparison in the folder listed (from :func:`check_out_dir`).
+
+    Returns
+    -------
+    dict
+        The contents of ``compare.json``.
+    """
+    out = Path(out_dir)
+    tune = float(tune_hz)
+    spacing = float(spacing_hz)
+    labels = [c.label for c in choices]
+    wav_names = [f"{lab}.wav" for lab in labels]
+    new_files = wav_names + [JSON_FILE, PAGE_FILE] + ([KEY_FILE] if plan.n else [])
+    if summaries is None:
+        summaries = [{} for _ in choices]
+    audio_fs = max(rates)
+    raw = [_resample(x, r, audio_fs) for x, r in zip(raw, rates)]
+    n = min(x.size for x in raw)
+    raw = [x[:n] for x in raw]
+
+    # ---- align, match loudness -----------------------------------------------------------
+    alignment = align(raw, audio_fs, max_lag_s=MAX_LAG_S)
+    cut = [alignment.cut(i, x) for i, x in enumerate(raw)]
+    # 0.001 dB of margin keeps the peak at or below the limit after rounding to 16 bits (half an LSB)
+    match = match_loudness(cut, audio_fs, peak_limit_dbfs=PEAK_LIMIT_DBFS - 0.001,
+                           names=[f"spec {c.label}" for c in choices])
+    quantized = []
+    for x, g in zip(cut, match.gain_db):
+        y = x * (10.0 ** (g / 20.0))
+        quantized.append(np.clip(np.round(y * 32768.0), -32768, 32767).astype(np.int16))
+    after = [integrated_loudness(q / 32768.0, audio_fs, name=c.label) for q, c in zip(quantized, choices)]
+
+    # ---- figures -------------------------------------------------------------------------
+    spec_rows = []
+    curves = []
+    for i, (c, d) in enumerate(zip(choices, designs)):
+        figs = designed_figures(d, tune, spacing)
+        off, db = selectivity_curve(d, tune)
+        curves.append((c.label, off, db))
+        s = summaries[i]
+        row = {
+            "label": c.label,
+            "chain": c.spec,
+            "name": d.name,
+            "wav": wav_names[i],
+            "loudness_lufs_before": match.before_lufs[i],
+            "loudness_lufs_after": after[i],
+            "gain_db": match.gain_db[i],
+            "peak_dbfs_after": match.peak_dbfs[i] + match.gain_db[i],
+            "delay_ms": alignment.lags[i] / audio_fs * 1e3,
+            **figs,
+            "audio_bandwidth_hz": audio_bandwidth_hz(cut[i], audio_fs),
+            "sinad_db": _finite_or_none(sinad_db(cut[i], audio_fs, tone_hz)) if tone_hz else None,
+            "receive": {k: s.get(k) for k in ("lo_hz", "if_hz", "image_hz", "carrier_dbfs", "agc_gain_db",
+                                              "clipped_samples", "warnings") if k in s},
+        }
+        spec_rows.append(row)
+
+    key_salt = np.random.default_rng([plan.seed, 0x5D]).bytes(16)
+    public_trials = plan.public_trials(labels)
+    result = _plain({
+        "capture": header["capture"],
+        "tune_hz": tune,
+        "excerpt": dict(header["excerpt"], audio_seconds=alignment.length / audio_fs),
+        "path": header["path"],
+        "audio_rate_hz": audio_fs,
+        "spacing_hz": spacing,
+        "alignment": {
+            "reference": labels[0],
+            "method": "integer lag at the peak of the cross-correlation with the first output",
+            "max_lag_ms": MAX_LAG_S * 1e3,
+        },
+        "loudness": {
+            "standard": "ITU-R BS.1770 integrated loudness (pyloudnorm)",
+            "target_lufs": match.target_lufs,
+            "peak_limit_dbfs": PEAK_LIMIT_DBFS,
+            "limited_by": labels[match.limiting],
+            "rule": "target = min over specs of (loudness + peak limit - sample peak)",
+        },
+        "specs": spec_rows,
+        "trials": public_trials,
+        "key_file": KEY_FILE if plan.n else None,
+        "page": PAGE_FILE,
+    })
+
+    # ---- page ----------------------------------------------------------------------------
+    from .page import render_page
+    from .plot import selectivity_png
+
+    blind_model = None
+    if plan.n:
+        import base64
+
+        blind_model = {
+            "trials": [dict(t, a_index=a, b_index=b) for t, (a, b) in zip(public_trials, plan.pairs)],
+            "key": blind_mod.encode_key(plan.x_is, key_salt),
+            "salt": base64.b64encode(key_salt).decode("ascii"),
+            "chance": blind_mod.chance_table(plan.n),
+        }
+    page = render_page({
+        "title": f"sdrx compare: {header['capture_name']} at {format_frequency(tune)}",
+        "subtitle": [header["subtitle"]],
+        "duration_s": alignment.length / audio_fs,
+        "target_lufs": match.target_lufs,
+        "spacing_hz": spacing,
+        "specs": spec_rows,
+        "plot_png": selectivity_png(curves, tune_hz=tune, spacing_hz=spacing),
+        "blind": blind_model,
+    })
+
+    # ---- write ---------------------------------------------------------------------------
+    out.mkdir(exist_ok=True)
+    _write_text(out / MARKER, _json_text({"made_by": "sdrx compare", "files": sorted(new_files)}))
+    for name, q in zip(wav_names, quantized):
+        _write_wav(out / name, q, audio_fs)
+    if plan.n:
+        key = plan.key(labels)
+        key["note"] = "X of each trial; the page shows this only when the key is revealed"
+        _write_text(out / KEY_FILE, _json_text(key))
+    _write_text(out / JSON_FILE, _json_text(result))
+    _write_text(out / PAGE_FILE, page)
+    for stale in sorted(old_files - set(new_files) - {MARKER}):
+        p = out / stale
+        if Path(stale).name == stale and stale not in (".", "..") and p.is_file():
+            p.unlink()
+    if progress_done is not None:
+        progress_done()
+    return result
