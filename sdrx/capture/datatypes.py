@@ -194,7 +194,8 @@ class Datatype:
         """
         a = np.asarray(x)
         if self.is_complex:
-            a = np.asarray(a, dtype=np.complex128 if self.bits > 32 and self.base == "f" else np.complex64)
+            # keep the caller's precision (complex64 stays complex64, anything else complex128)
+            a = np.asarray(a, dtype=np.complex64 if a.dtype == np.complex64 else np.complex128)
             comp = a.reshape(-1).view(a.real.dtype)
         else:
             if np.iscomplexobj(a):
