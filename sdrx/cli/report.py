@@ -1,0 +1,67 @@
+"""``sdrx report``: selectivity and image report of a chain at one tuning (JSON, PNG, HTML)."""
+
+from __future__ import annotations
+
+import click
+
+from .common import capture_kwargs, capture_options, progress_for
+
+__all__ = ["command"]
+
+
+@click.command("report")
+@click.argument("chain", metavar="SPEC|PRESET")
+@click.option("--tune", required=True, metavar="F", help="Tuned carrier, e.g. 1130k.")
+@click.option("--capture", "capture", default=None, metavar="CAPTURE",
+              help="Also list the carriers of this capture near the tuning and draw its spectrum.")
+@click.option("--spacing", default="10k", show_default=True, metavar="F", help="Channel spacing (9k or 10k at MF).")
+@click.option("--path", "path", type=click.Choice(["fast", "exact"]), default="fast", show_default=True,
+              help="Execution path used for the measured figures.")
+@click.option("--points", default=31, show_default=True, type=int,
+              help="Test carriers across +-3 channel spacings for the measured curve.")
+@click.option("--no-measure", is_flag=True, help="Designed figures only (skip the test-carrier runs).")
+@click.option("-o", "--output", "out_dir", required=True, metavar="DIR",
+              help="Folder for report.json, report.html and the PNG figures (created if missing).")
+@click.option("--force", is_flag=True, help="Replace report files already in DIR.")
+@click.option("--quiet", is_flag=True, help="No progress bar and no summary line.")
+@capture_options
+def command(chain, tune, capture, spacing, path, points, no_measure, out_dir, force, quiet,
+            datatype, rate, center, start, duration):
+    """Selectivity and image report: designed and measured figures, equivalent Q, figures.
+
+    Example:
+
+        sdrx report medium --tune 1130k -o demo_out/report
+
+    Writes DIR/report.json, DIR/report.html (self-contained, opens from disk)
+    and DIR/*.png. With --capture, the carriers near the tuning and the
+    capture's spectrum are added.
+    """
+    from ..report.build import build_report, report_files, write_report
+    from ..units import parse_seconds
+    from pathlib import Path
+
+    # refuse an existing output before any work
+    d = Path(out_dir)
+    if d.is_dir() and not force:
+        from ..fileio import check_output
+
+        for p in report_files(d, {}):
+            check_output(p, force=force, option="-o")
+    start_s = parse_seconds(start, "--start")
+    duration_s = None if duration is None else parse_seconds(duration, "--duration", allow_zero=False)
+    bar = progress_for("measuring", quiet)
+    try:
+        rep = build_report(chain, tune, spacing_hz=spacing, capture=capture, path=path, measure=not no_measure,
+                           points=points, start_s=start_s, duration_s=duration_s, progress=bar,
+                           capture_kw=capture_kwargs(datatype, rate, center) if capture else None)
+    finally:
+        if bar is not None:
+            bar.close()
+    inputs = [capture] if capture else []
+    if Path(chain).is_file():
+        inputs.append(chain)
+    written = write_report(rep, out_dir, force=force, inputs=inputs)
+    if not quiet:
+        html = next(p for p in written if p.name == "report.html")
+        click.echo(str(html))

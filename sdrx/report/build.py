@@ -1,0 +1,310 @@
+"""Selectivity and image report of a chain at one tuning: data, figures, files.
+
+:func:`build_report` gathers the designed figures (from the chain design),
+the measured figures (test carriers through :class:`sdrx.run.Receiver`, AGC
+held) and, with a capture, the carriers near the tuning and the spectrum;
+it returns the JSON-ready data and the PNG figures as bytes.
+:func:`write_report` writes ``report.json``, the PNGs and one
+self-contained ``report.html`` into a folder, each file atomically.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import OutputError, ParameterError
+from ..fileio import atomic_path, check_output
+from ..units import format_frequency
+from ..analysis import selectivity as sel
+
+__all__ = ["Report", "build_report", "write_report", "report_files", "GROUP_DELAY_METHOD"]
+
+GROUP_DELAY_METHOD = ("numerical derivative of the analog responses' phase: central difference over 1 Hz, "
+                      "IF stages with respect to the IF frequency, preselector with respect to RF, summed")
+MEASURE_METHOD = ("single-signal method (ITU-R SM.332): one unmodulated test carrier at a time, AGC held, "
+                  "carrier level at the detector, relative to the level of a carrier at the tune")
+
+#: Carriers within this many channel spacings of the tune are listed (and any near the image).
+NEAR_CHANNELS = 5
+
+
+@dataclass(frozen=True)
+class Report:
+    """A built report: ``data`` (JSON-ready dict) and ``figures`` (file name -> PNG bytes)."""
+
+    data: dict
+    figures: dict
+
+
+def _hz(v):
+    return None if v is None or not math.isfinite(v) else round(float(v), 1)
+
+
+def _db(v):
+    return None if v is None or not math.isfinite(v) else round(float(v), 3)
+
+
+def _q(v):
+    return None if v is None or not math.isfinite(v) else round(float(v), 2)
+
+
+def _figures_json(fig, response_offsets_fmt=True) -> dict:
+    return {
+        "method": fig.method,
+        "bandwidth_hz": {k: _hz(v) for k, v in fig.bandwidth_hz.items()},
+        "edges_hz": {k: [_hz(a), _hz(b)] for k, (a, b) in fig.edges_hz.items()},
+        "shape_factor": None if fig.shape_factor is None else round(fig.shape_factor, 4),
+        "adjacent_rejection_db": {k: _db(v) for k, v in fig.adjacent_rejection_db.items()},
+        "image_rejection_db": _db(fig.image_rejection_db),
+        "response": [[_hz(o), _db(v)] for o, v in fig.response],
+    }
+
+
+def _diff(a, b, rnd):
+    return None if a is None or b is None else rnd(a - b)
+
+
+def _difference(meas: dict, des: dict, designed_fn) -> dict:
+    out = {
+        "bandwidth_hz": {k: _diff(meas["bandwidth_hz"][k], des["bandwidth_hz"][k], _hz) for k in des["bandwidth_hz"]},
+        "shape_factor": (None if meas["shape_factor"] is None or des["shape_factor"] is None
+                         else round(meas["shape_factor"] - des["shape_factor"], 4)),
+        "adjacent_rejection_db": {k: _diff(meas["adjacent_rejection_db"][k], des["adjacent_rejection_db"][k], _db)
+                                  for k in des["adjacent_rejection_db"]},
+        "image_rejection_db": _diff(meas["image_rejection_db"], des["image_rejection_db"], _db),
+    }
+    # each measured point against the designed response at the same offset
+    offs = np.array([o for o, _ in meas["response"]], dtype=float)
+    dvals = designed_fn(offs)
+    out["response"] = [[o, _db(v - d)] for (o, v), d in zip(meas["response"], dvals)]
+    within = [abs(v - d) for (o, v), d in zip(meas["response"], dvals) if d >= -80.0]
+    out["max_abs_db_down_to_80"] = _db(max(within)) if within else None
+    return out
+
+
+def _carriers(reader, design, tune_hz, spacing_hz, start_s, duration_s, progress):
+    from ..analysis.survey import survey_carriers
+
+    found = survey_carriers(reader, spacing_hz=spacing_hz, start_s=start_s, duration_s=duration_s,
+                            progress=progress)
+    image = design.image_hz(tune_hz)
+    rows = []
+    for c in found:
+        off = c.freq_hz - tune_hz
+        on_image = abs(c.freq_hz - image) <= spacing_hz / 2
+        if abs(off) > NEAR_CHANNELS * spacing_hz + spacing_hz / 2 and abs(c.freq_hz - image) > spacing_hz * 1.5:
+            continue
+        rel = float(sel.relative_response_db(design, tune_hz, [c.freq_hz])[0])
+        rows.append({
+            "freq_hz": _hz(c.freq_hz),
+            "offset_hz": _hz(off),
+            "antenna_dbfs": _db(c.level_dbfs),
+            "selectivity_db": _db(rel),
+            "detector_dbfs": _db(c.level_dbfs + rel),
+            "tuned": abs(off) <= spacing_hz / 2,
+            "image": bool(on_image),
+            "within_two_channels": bool(spacing_hz / 2 < abs(off) <= 2 * spacing_hz + spacing_hz / 2),
+        })
+    rows.sort(key=lambda r: (r["offset_hz"], r["freq_hz"]))
+    return rows
+
+
+def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", measure=True, points=31,
+                 start_s=0.0, duration_s=None, progress=None, capture_kw=None) -> Report:
+    """Build the selectivity and image report of a chain at one tuning.
+
+    Parameters
+    ----------
+    chain : str, dict, ChainSpec or ChainDesign
+        Preset name, TOML path, spec or design.
+    tune_hz : float or str
+        The tuned carrier ("1130k").
+    spacing_hz : float or str
+        Channel spacing.
+    capture : str or Path, optional
+        A capture to survey: carriers near the tuning and its spectrum.
+    path : {"fast", "exact"}
+        Execution path of the measured figures.
+    measure : bool
+        Run the measured figures (test carriers through the chain).
+    points : int
+        Number of grid offsets of the measured curve across ±3 spacings.
+    start_s, duration_s : float
+        Excerpt of the capture.
+    progress : callable, optional
+    capture_kw : dict, optional
+        ``datatype``, ``fs``, ``center_hz`` for :func:`sdrx.capture.open_capture`.
+
+    Returns
+    -------
+    Report
+
+    Raises
+    ------
+    ParameterError
+        Bad tuning or spacing; a tuning outside the capture's band.
+    CaptureError
+        From the capture reader.
+    """
+    from ..chain import design_chain
+    from ..units import parse_frequency
+    from . import plots
+
+    design = design_chain(chain)
+    tune = parse_frequency(tune_hz, "--tune")
+    spacing = parse_frequency(spacing_hz, "--spacing")
+    tune, spacing = sel.validate_tuning(design, tune, spacing)
+    if path not in ("fast", "exact"):
+        raise ParameterError(f"--path {path!r}: choose fast or exact")
+    if not isinstance(points, int) or points < 7:
+        raise ParameterError(f"--points {points!r}: must be a whole number >= 7")
+    reader = None
+    if capture is not None:
+        from ..capture import open_capture
+
+        reader = open_capture(capture, **(capture_kw or {}))
+        lo_b, hi_b = reader.info.band_hz
+        if not (lo_b < tune < hi_b):
+            raise ParameterError(
+                f"--tune {format_frequency(tune)}: outside the band of capture {reader.info.path} "
+                f"({format_frequency(lo_b)} to {format_frequency(hi_b)})")
+
+    designed = sel.designed_figures(design, tune, spacing)
+    dres = lambda o: sel.relative_response_db(design, tune, tune + np.asarray(o, dtype=float))
+    des = _figures_json(designed)
+    qs = sel.q_summary(design, tune, spacing, designed)
+    des["q"] = {
+        "stages": [{"stage": s["stage"], "response": s["response"], "order": s["order"], "f0_hz": _hz(s["f0_hz"]),
+                    "bandwidth_hz": _hz(s["bandwidth_hz"]), "loaded_q": _q(s["loaded_q"])} for s in qs["stages"]],
+        "rejection_db": _db(qs["rejection_db"]),
+        "offset_hz": _hz(qs["offset_hz"]),
+        "equivalent_rf": _q(qs["equivalent_rf"]),
+        "equivalent_if": _q(qs["equivalent_if"]),
+        "shortcut_rf": _q(qs["shortcut_rf"]),
+        "shortcut_if": _q(qs["shortcut_if"]),
+        "shortcut_rf_error_pct": _q(qs["shortcut_rf_error_pct"]),
+        "shortcut_if_error_pct": _q(qs["shortcut_if_error_pct"]),
+        "method": "one single-tuned circuit, exact universal resonance curve 10*log10(1+Q^2 rho^2) at "
+                  "tune+spacing (worse side), rejection = smaller of the two at +-1 spacing; shortcut "
+                  "Q = 10^(x/20)*f0/(2*spacing)",
+    }
+    e3 = designed.edges_hz["3"]
+    e6 = designed.edges_hz["6"]
+    gd_span = 1.25 * max(abs(e6[0] or spacing / 2), abs(e6[1] or spacing / 2))
+    gd_offs = np.linspace(-gd_span, gd_span, 201)
+    gd = sel.group_delay_s(design, tune, gd_offs)
+    in3 = (gd_offs >= (e3[0] if e3[0] is not None else -np.inf)) & (gd_offs <= (e3[1] if e3[1] is not None else np.inf))
+    des["group_delay"] = {
+        "method": GROUP_DELAY_METHOD,
+        "at_tune_s": round(float(sel.group_delay_s(design, tune, [0.0])[0]), 9),
+        "variation_in_3db_s": round(float(gd[in3].max() - gd[in3].min()), 9) if in3.any() else None,
+        "response": [[_hz(o), round(float(t), 9)] for o, t in zip(gd_offs, gd)],
+    }
+
+    meas = None
+    if measure:
+        measured = sel.measured_figures(design, tune, spacing, designed, path=path, points=points,
+                                        progress=progress)
+        meas = _figures_json(measured)
+        meas["path"] = path
+        meas["method_detail"] = MEASURE_METHOD
+        meas["difference"] = _difference(meas, des, dres)
+
+    lo_hz = design.lo_hz(tune)
+    image = design.image_hz(tune)
+    data = {
+        "chain": design.name,
+        "tune_hz": _hz(tune),
+        "if_hz": _hz(design.if_hz),
+        "lo_hz": _hz(lo_hz),
+        "image_hz": _hz(image),
+        "spacing_hz": _hz(spacing),
+        "injection": design.injection,
+        "designed": des,
+        "measured": meas,
+        "capture": None,
+        "carriers": None,
+    }
+
+    # figures
+    figs = {}
+    title = f"{design.name}: tuned to {format_frequency(tune)}, IF {format_frequency(design.if_hz)}"
+    mresp = meas["response"] if meas else None
+    figs["selectivity.png"] = plots.selectivity_png(des["response"], mresp, spacing, des["adjacent_rejection_db"],
+                                                    title=f"Overall selectivity referred to RF - {title}")
+    st_offs = np.linspace(-3 * spacing, 3 * spacing, 241)
+    figs["stages.png"] = plots.stages_png(st_offs, sel.stage_responses_db(design, tune, st_offs), dres(st_offs),
+                                          spacing, title=f"Each stage referred to RF - {title}")
+    figs["image.png"] = plots.image_png(des["response"], mresp, image - tune, spacing, des["image_rejection_db"],
+                                        title=f"Image region ({format_frequency(image)}) - {title}")
+    figs["group_delay.png"] = plots.group_delay_png(gd_offs, gd, e3, title=f"Group delay - {title}")
+
+    if reader is not None:
+        from .spectrum import capture_spectrum
+
+        data["capture"] = reader.info.to_json()
+        data["carriers"] = _carriers(reader, design, tune, spacing, start_s, duration_s, None)
+        f, lv = capture_spectrum(reader, spacing / 20, start_s=start_s, duration_s=duration_s)
+        near = np.abs(f - tune) <= (NEAR_CHANNELS + 0.5) * spacing
+        nim = np.abs(f - image) <= 3.5 * spacing
+        cars = [(c["freq_hz"], c["antenna_dbfs"]) for c in data["carriers"]]
+        figs["spectrum.png"] = plots.spectrum_png(
+            f[near], lv[near], tune, (tune + e6[0], tune + e6[1]) if None not in e6 else (tune, tune), image, cars,
+            image_freqs_hz=f[nim] if nim.sum() > 4 else None, image_level_dbfs=lv[nim] if nim.sum() > 4 else None,
+            title=f"Capture spectrum - {title}")
+    data["figures"] = sorted(figs)
+    return Report(data, figs)
+
+
+def report_files(out_dir, figures) -> list:
+    """The files :func:`write_report` writes into ``out_dir``."""
+    d = Path(out_dir)
+    return [d / "report.json", d / "report.html"] + [d / name for name in sorted(figures)]
+
+
+def write_report(report: Report, out_dir, *, force=False, inputs=()) -> list:
+    """Write ``report.json``, the PNG figures and ``report.html`` into ``out_dir``.
+
+    The folder is created when missing (its parent must exist). Every file
+    is checked before anything is written (existing files need ``force``)
+    and each is written atomically.
+
+    Returns
+    -------
+    list of Path
+        The files written.
+
+    Raises
+    ------
+    OutputError
+        Output folder's parent missing, the folder is a file, or a file exists
+        without ``force``.
+    """
+    from .html import render_html
+
+    d = Path(out_dir)
+    if d.exists() and not d.is_dir():
+        raise OutputError(f"-o {d}: exists and is not a folder")
+    parent = d.parent if str(d.parent) else Path(".")
+    if not parent.is_dir():
+        raise OutputError(f"-o {d}: folder {parent} does not exist")
+    files = report_files(d, report.figures)
+    if d.is_dir():
+        for p in files:
+            check_output(p, inputs=inputs, force=force, option="-o")
+    text = json.dumps(report.data, indent=1, allow_nan=False) + "\n"
+    page = render_html(report.data, report.figures)
+    d.mkdir(exist_ok=True)
+    payload = {"report.json": text.encode(), "report.html": page.encode()}
+    payload.update(report.figures)
+    written = []
+    for p in files:
+        with atomic_path(p) as tmp:
+            tmp.write_bytes(payload[p.name])
+        written.append(p)
+    return written

@@ -1,0 +1,191 @@
+"""One self-contained HTML page for a report: figures embedded as data: URIs, no external links.
+
+Every number in the tables is the JSON value itself (same rounding), written
+with ``repr`` of the float and tagged with ``data-key`` = its path in
+``report.json`` (dots between keys, list indices as numbers), so the page and
+the JSON can be checked against each other. All user text (chain name,
+capture path, stage labels) goes through :func:`html.escape`.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+
+__all__ = ["render_html", "lookup"]
+
+_CSS = """
+body{font-family:system-ui,sans-serif;margin:1.5em auto;max-width:60em;color:#111;line-height:1.4}
+h1{font-size:1.4em}h2{font-size:1.15em;margin-top:1.6em;border-bottom:1px solid #ccc}
+table{border-collapse:collapse;margin:.6em 0}th,td{border:1px solid #bbb;padding:.2em .6em}
+td.n{text-align:right;font-variant-numeric:tabular-nums}th{background:#eee;text-align:left}
+img{max-width:100%;height:auto;display:block;margin:.6em 0}.note{color:#444;font-size:.9em}
+"""
+
+
+def lookup(data, key: str):
+    """Value at a dotted ``data-key`` path (``"designed.q.stages.0.loaded_q"``).
+
+    Examples
+    --------
+    >>> lookup({"a": {"b": [1.5, 2.0]}}, "a.b.1")
+    2.0
+    """
+    cur = data
+    for part in _split(key):
+        cur = cur[int(part)] if isinstance(cur, list) else cur[part]
+    return cur
+
+
+def _split(key):
+    # keys of adjacent_rejection_db are signed integers ("-10000") and never contain dots
+    return key.split(".")
+
+
+def _e(text) -> str:
+    return html.escape(str(text), quote=True)
+
+
+def _num(data, key, unit_scale=None):
+    v = lookup(data, key)
+    if v is None:
+        return '<td class="n" data-key="%s" data-null="1">n/a</td>' % _e(key)
+    if isinstance(v, bool):
+        return "<td>%s</td>" % ("yes" if v else "")
+    return '<td class="n" data-key="%s">%s</td>' % (_e(key), _e(repr(v) if isinstance(v, float) else v))
+
+
+def _img(name, png, alt):
+    b64 = base64.b64encode(png).decode("ascii")
+    return f'<img alt="{_e(alt)}" src="data:image/png;base64,{b64}" data-name="{_e(name)}">'
+
+
+def _row(label, cells):
+    return "<tr><th>%s</th>%s</tr>" % (_e(label), "".join(cells))
+
+
+def _selectivity_table(data):
+    has_m = data.get("measured") is not None
+    head = "<tr><th>quantity</th><th>designed</th>" + ("<th>measured</th><th>difference</th>" if has_m else "") + "</tr>"
+    rows = [head]
+
+    def row(label, sub):
+        cells = [_num(data, "designed." + sub)]
+        if has_m:
+            cells += [_num(data, "measured." + sub), _num(data, "measured.difference." + sub)]
+        rows.append(_row(label, cells))
+
+    for k in sorted(data["designed"]["bandwidth_hz"], key=float):
+        row(f"bandwidth at -{k} dB, Hz", f"bandwidth_hz.{k}")
+    row("shape factor (60 dB / 6 dB width)", "shape_factor")
+    for k in sorted(data["designed"]["adjacent_rejection_db"], key=lambda s: (abs(float(s)), float(s))):
+        off = float(k) / 1e3
+        row(f"adjacent-channel rejection at {off:+g} kHz, dB", f"adjacent_rejection_db.{k}")
+    row("image rejection, dB", "image_rejection_db")
+    out = "<table>" + "".join(rows) + "</table>"
+    if has_m:
+        out += ('<p class="note">Largest difference between measured and designed points down to -80 dB: '
+                '<span data-key="measured.difference.max_abs_db_down_to_80">%s</span> dB.</p>'
+                % _e(data["measured"]["difference"]["max_abs_db_down_to_80"]))
+    return out
+
+
+def _q_tables(data):
+    q = data["designed"]["q"]
+    rows = ["<tr><th>stage</th><th>response</th><th>order</th><th>centre, Hz</th>"
+            "<th>bandwidth (-3 dB), Hz</th><th>loaded Q</th></tr>"]
+    for i, s in enumerate(q["stages"]):
+        base = f"designed.q.stages.{i}."
+        rows.append("<tr><td>%s</td><td>%s</td>%s%s%s%s</tr>" % (
+            _e(s["stage"]), _e(s["response"]), _num(data, base + "order"), _num(data, base + "f0_hz"),
+            _num(data, base + "bandwidth_hz"), _num(data, base + "loaded_q")))
+    t1 = "<table>" + "".join(rows) + "</table>"
+    rows = ["<tr><th></th><th>at RF (the tune)</th><th>at the IF</th></tr>",
+            _row("equivalent Q, exact (one single-tuned circuit)",
+                 [_num(data, "designed.q.equivalent_rf"), _num(data, "designed.q.equivalent_if")]),
+            _row("shortcut Q = 10^(x/20)·f0/BW_x", [_num(data, "designed.q.shortcut_rf"), _num(data, "designed.q.shortcut_if")]),
+            _row("shortcut error, %", [_num(data, "designed.q.shortcut_rf_error_pct"),
+                                       _num(data, "designed.q.shortcut_if_error_pct")])]
+    t2 = "<table>" + "".join(rows) + "</table>"
+    note = ('<p class="note">Rejection x = <span data-key="designed.q.rejection_db">%s</span> dB at '
+            '<span data-key="designed.q.offset_hz">%s</span> Hz (the smaller of the two sides). %s</p>'
+            % (_e(q["rejection_db"]), _e(q["offset_hz"]), _e(q["method"])))
+    return t1 + t2 + note
+
+
+def _carrier_table(data):
+    rows = ["<tr><th>frequency, Hz</th><th>offset, Hz</th><th>at antenna, dBFS</th><th>selectivity, dB</th>"
+            "<th>at detector, dBFS</th><th>tuned</th><th>image</th><th>within 2 channels</th></tr>"]
+    for i, c in enumerate(data["carriers"]):
+        b = f"carriers.{i}."
+        rows.append("<tr>%s</tr>" % "".join(_num(data, b + k) for k in (
+            "freq_hz", "offset_hz", "antenna_dbfs", "selectivity_db", "detector_dbfs", "tuned", "image",
+            "within_two_channels")))
+    return ("<table>" + "".join(rows) + "</table>"
+            '<p class="note">Level at the detector = level at the antenna + the designed selectivity at that '
+            "frequency (relative to a carrier at the tune, i.e. with the chain's gain at the tune taken as 0 dB).</p>")
+
+
+def render_html(data: dict, figures: dict) -> str:
+    """The report as one HTML page (UTF-8 text) with every figure embedded.
+
+    Parameters
+    ----------
+    data : dict
+        The report data (as written to ``report.json``).
+    figures : dict
+        File name -> PNG bytes.
+
+    Returns
+    -------
+    str
+    """
+    d = data
+    title = f"sdrx report: {d['chain']} tuned to {d['tune_hz'] / 1e3:g} kHz"
+    parts = [
+        "<!DOCTYPE html>",
+        '<html lang="en"><head><meta charset="utf-8">',
+        f"<title>{_e(title)}</title><style>{_CSS}</style></head><body>",
+        f"<h1>{_e(title)}</h1>",
+        "<table>",
+        _row("chain", ["<td>%s</td>" % _e(d["chain"])]),
+        _row("tuned carrier, Hz", [_num(d, "tune_hz")]),
+        _row("IF, Hz", [_num(d, "if_hz")]),
+        _row(f"LO ({d['injection']}-side), Hz", [_num(d, "lo_hz")]),
+        _row("image, Hz", [_num(d, "image_hz")]),
+        _row("channel spacing, Hz", [_num(d, "spacing_hz")]),
+        "</table>",
+        "<h2>Selectivity referred to RF</h2>",
+    ]
+    if "selectivity.png" in figures:
+        parts.append(_img("selectivity.png", figures["selectivity.png"], "overall selectivity"))
+    parts.append(_selectivity_table(d))
+    if d.get("measured") is not None:
+        parts.append('<p class="note">Measured: %s; %s path.</p>'
+                     % (_e(d["measured"]["method_detail"]), _e(d["measured"]["path"])))
+    parts.append("<h2>Each stage</h2>")
+    if "stages.png" in figures:
+        parts.append(_img("stages.png", figures["stages.png"], "response of each stage"))
+    parts.append(_q_tables(d))
+    parts.append("<h2>Image</h2>")
+    if "image.png" in figures:
+        parts.append(_img("image.png", figures["image.png"], "image region"))
+    parts.append("<h2>Group delay</h2>")
+    if "group_delay.png" in figures:
+        parts.append(_img("group_delay.png", figures["group_delay.png"], "group delay"))
+    gd = d["designed"]["group_delay"]
+    parts.append("<table>" + _row("group delay at the tune, s", [_num(d, "designed.group_delay.at_tune_s")])
+                 + _row("variation within the -3 dB band, s", [_num(d, "designed.group_delay.variation_in_3db_s")])
+                 + "</table>")
+    parts.append('<p class="note">Method: %s.</p>' % _e(gd["method"]))
+    if d.get("carriers") is not None:
+        parts.append("<h2>Carriers in the capture near the tuning</h2>")
+        parts.append('<p class="note">Capture: %s</p>' % _e(d["capture"]["path"]))
+        if "spectrum.png" in figures:
+            parts.append(_img("spectrum.png", figures["spectrum.png"], "capture spectrum"))
+        parts.append(_carrier_table(d))
+    for name in sorted(figures):
+        if name not in ("selectivity.png", "stages.png", "image.png", "group_delay.png", "spectrum.png"):
+            parts.append(_img(name, figures[name], name))
+    parts.append("</body></html>\n")
+    return "\n".join(parts)

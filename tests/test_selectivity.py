@@ -1,0 +1,129 @@
+"""Tests of sdrx.analysis.selectivity: designed figures against outside formulas and scipy."""
+
+import math
+
+import numpy as np
+import pytest
+from scipy import signal
+
+from sdrx.analysis import selectivity as sel
+from sdrx.chain import design_chain
+from sdrx.errors import ParameterError
+
+TUNE = 1000e3
+IF = 455e3
+
+
+def _scipy_relative_db(design, tune, f):
+    """Chain response by another route: scipy.signal.freqs on each stage's (z, p, k) and preselector formula."""
+    lo = tune + design.if_hz
+    f = np.asarray(f, dtype=float)
+    h = np.ones(f.shape, complex)
+    for st in design.stages:
+        b, a = signal.zpk2tf(*st.zpk)
+        _, hs = signal.freqs(b, a, worN=2 * np.pi * np.abs(f - lo))
+        _, h0 = signal.freqs(b, a, worN=[2 * np.pi * design.if_hz])
+        h *= hs / h0
+    q = design.preselector.q
+    rho = f / tune - tune / f
+    h *= 1 / (1 + 1j * q * rho)  # source: universal resonance curve (tracking single-tuned preselector)
+    return 20 * np.log10(np.abs(h))
+
+
+@pytest.mark.parametrize("preset", ["wide", "medium", "narrow"])
+def test_designed_bandwidths_against_scipy_freqs(preset):
+    d = design_chain(preset)
+    fig = sel.designed_figures(d, TUNE, 10e3)
+    off = np.arange(-200e3, 200e3, 2.0)
+    y = _scipy_relative_db(d, TUNE, TUNE + off)
+    for k, w in fig.bandwidth_hz.items():
+        lvl = float(k)
+        # first crossing each side of 0 on a 2 Hz grid (source: scipy.signal.freqs as a second route)
+        i0 = np.searchsorted(off, 0)
+        up = i0 + np.argmax(y[i0:] <= -lvl)
+        dn = i0 - np.argmax(y[i0::-1] <= -lvl)
+        assert w == pytest.approx(off[up] - off[dn], abs=4.0), k
+    sf = fig.bandwidth_hz["60"] / fig.bandwidth_hz["6"]
+    assert fig.shape_factor == pytest.approx(sf, rel=1e-12)
+    for key, rej in fig.adjacent_rejection_db.items():
+        assert rej == pytest.approx(-_scipy_relative_db(d, TUNE, [TUNE + float(key)])[0], abs=1e-6)
+
+
+@pytest.mark.parametrize("n", [3, 5])
+def test_butterworth_attenuation(n):
+    d = design_chain({"preselector": {"kind": "none"},
+                      "if_stage": [{"response": "butterworth", "order": n, "bandwidth": "9k"}]})
+    fig = sel.designed_figures(d, TUNE, 9e3)
+    for key, rej in fig.adjacent_rejection_db.items():
+        f_if = IF - float(key)  # high-side LO: RF offset +d lands at IF - d
+        omega = abs(f_if**2 - IF**2) / (f_if * 9e3)  # low-pass to band-pass, geometric symmetry (scipy lp2bp docs)
+        # source: Butterworth A = 10 log10(1 + Omega^(2n)), filter handbooks (Zverev; Williams & Taylor)
+        assert rej == pytest.approx(10 * math.log10(1 + omega ** (2 * n)), abs=1e-6)
+    # -3 dB full width of the band-pass is the design bandwidth, exactly (Omega = 1 at the edges)
+    assert fig.bandwidth_hz["3"] == pytest.approx(9e3, rel=1e-3)
+
+
+def test_butterworth_group_delay():
+    d = design_chain({"preselector": {"kind": "none"},
+                      "if_stage": [{"response": "butterworth", "order": 5, "bandwidth": "9k"}]})
+    tau = sel.group_delay_s(d, TUNE, [0.0])[0]
+    wc = 2 * math.pi * 4.5e3  # band-pass 9 kHz wide = low-pass equivalent with 4.5 kHz cut-off
+    # source: Butterworth group delay tau(0) = 1/sin(pi/2n)/wc, filter texts; n 5, fc 4.5 kHz: 114.5 us
+    assert tau == pytest.approx(1 / math.sin(math.pi / 10) / wc, rel=2e-3)
+    assert tau * 1e6 == pytest.approx(114.5, abs=0.3)
+
+
+def test_group_delay_of_single_tuned_preselector():
+    d = design_chain({"preselector": {"kind": "tracking", "q": 50},
+                      "if_stage": [{"response": "single_tuned", "q": 40}]})
+    tau = sel.group_delay_s(d, TUNE, [0.0])[0]
+    # source: single-tuned circuit, tau(f0) = 2Q/w0 (envelope delay of a resonator), EE circuit texts
+    assert tau == pytest.approx(2 * 50 / (2 * math.pi * TUNE) + 2 * 40 / (2 * math.pi * IF), rel=1e-6)
+
+
+def test_preselector_image_rejection_worked_example():
+    d = design_chain({"preselector": {"kind": "tracking", "q": 100}, "mixer": {"kind": "real"},
+                      "if_stage": [{"response": "butterworth", "order": 2, "bandwidth": "9k"}]})
+    fig = sel.designed_figures(d, TUNE, 10e3)
+    fim = TUNE + 2 * IF  # common practice: image = f + 2 IF for high-side LO
+    rho = fim / TUNE - TUNE / fim
+    # source: receiver chapter of communication-systems texts, alpha = sqrt(1 + Q^2 rho^2): 42.8 dB
+    assert fig.image_rejection_db == pytest.approx(20 * math.log10(math.sqrt(1 + 100**2 * rho**2)), abs=1e-9)
+    assert fig.image_rejection_db == pytest.approx(42.8, abs=0.05)
+
+
+def test_real_mixer_without_preselector_has_no_image_rejection():
+    d = design_chain({"preselector": {"kind": "none"}, "mixer": {"kind": "real"}})
+    # physical identity: a real mixer's image response equals its wanted response
+    assert sel.designed_figures(d, TUNE, 10e3).image_rejection_db == pytest.approx(0.0, abs=1e-9)
+
+
+def test_equivalent_q_of_one_single_tuned_stage_is_its_q():
+    d = design_chain({"preselector": {"kind": "none"}, "if_stage": [{"response": "single_tuned", "q": 40}]})
+    fig = sel.designed_figures(d, TUNE, 10e3)
+    q = sel.q_summary(d, TUNE, 10e3, fig)
+    # identity: the chain IS one single-tuned circuit at the IF (universal resonance curve, exact form)
+    assert q["equivalent_if"] == pytest.approx(40.0, rel=1e-9)
+    assert q["stages"][0]["loaded_q"] == 40.0
+    x = q["rejection_db"]
+    assert q["shortcut_if"] == pytest.approx(10 ** (x / 20) * IF / 20e3, rel=1e-12)
+    assert q["shortcut_if_error_pct"] == pytest.approx(100 * (q["shortcut_if"] / 40 - 1), rel=1e-9)
+    # the same rejection at RF needs Q scaled by about f_RF/f_IF: the reason for the superheterodyne
+    assert q["equivalent_rf"] / q["equivalent_if"] == pytest.approx(TUNE / IF, rel=0.03)
+
+
+def test_band_edges_refined():
+    lo, hi = sel.band_edges(lambda x: -10 * np.log10(1 + (x / 1e3) ** 2), 3.0, 20e3, 50.0)
+    assert hi == pytest.approx(1e3 * math.sqrt(10**0.3 - 1), abs=1e-5)
+    assert lo == pytest.approx(-hi, abs=1e-5)
+    assert sel.band_edges(lambda x: -np.abs(x) * 0, 3.0, 1e3, 10.0) == (None, None)
+
+
+@pytest.mark.parametrize("tune, spacing, match", [
+    (-1e3, 10e3, "above 0"),
+    (20e3, 10e3, "would reach 0 Hz"),
+    (1e6, 200e3, "--spacing"),
+])
+def test_bad_tuning(tune, spacing, match):
+    with pytest.raises(ParameterError, match=match):
+        sel.designed_figures(design_chain("medium"), tune, spacing)
