@@ -21,6 +21,8 @@ import html
 import json
 from urllib.parse import quote
 
+from ..units import format_frequency
+
 __all__ = ["json_for_script", "render_page"]
 
 
@@ -243,7 +245,7 @@ def _figure_rows(specs: list, spacing_hz: float | None) -> str:
                     + _num(s["adjacent_rejection_db"]["upper"], ".1f", " dB"))
          if s.get("adjacent_rejection_db") else "&mdash;"),
         ("image rejection", lambda s: (_num(s.get("image_rejection_db"), ".1f", " dB")
-                                       + (f" at {_khz(s['image_hz'])}" if s.get("image_hz") else ""))),
+                                       + (f" at {_e(format_frequency(s['image_hz']))}" if s.get("image_hz") else ""))),
         ("audio bandwidth (−20 dB re 300 Hz–1 kHz)", lambda s: _khz(s.get("audio_bandwidth_hz"))),
         ("SINAD (truth sidecar tone)", lambda s: _num(s.get("sinad_db"), ".1f", " dB")),
         ("loudness before matching", lambda s: _num(s.get("loudness_lufs_before"), ".1f", " LUFS")),
