@@ -155,7 +155,7 @@ def stages_png(offsets_hz, curves, overall_db, spacing_hz, *, title="", floor_db
     ax.set_xlabel("offset from tuned carrier, kHz")
     ax.set_ylabel("response relative to its value at the tune, dB")
     ax.set_title(title or "Response of each stage")
-    ax.legend(loc="lower center", fontsize=8)
+    ax.legend(loc="lower center", fontsize=7, ncol=2, framealpha=0.9)
     return _png(fig, ctx)
 
 
@@ -202,7 +202,7 @@ def group_delay_png(offsets_hz, delay_s, edges_hz=None, *, title="") -> bytes:
     ax.set_xlabel("offset from tuned carrier, kHz")
     ax.set_ylabel("group delay, µs")
     ax.set_title(title or "Group delay across the passband")
-    ax.legend(loc="upper center", fontsize=8)
+    ax.legend(loc="lower center", fontsize=8)
     return _png(fig, ctx)
 
 

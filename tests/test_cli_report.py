@@ -1,0 +1,66 @@
+"""Command-line tests of ``sdrx report``."""
+
+import json
+
+import pytest
+
+from sdrx.cli import main
+
+
+def run(args, capsys):
+    try:
+        rc = main(args)
+    except SystemExit as exc:
+        rc = exc.code
+    out, err = capsys.readouterr()
+    return rc, out, err
+
+
+def test_designed_only_writes_folder(tmp_path, capsys):
+    out = tmp_path / "rep"
+    rc, so, err = run(["report", "medium", "--tune", "1130k", "--no-measure", "-o", str(out)], capsys)
+    assert rc == 0, err
+    assert so.strip() == str(out / "report.html")
+    d = json.loads((out / "report.json").read_text())
+    assert d["tune_hz"] == 1130e3 and d["measured"] is None
+    assert sorted(p.name for p in out.iterdir()) == sorted(["report.json", "report.html", *d["figures"]])
+
+
+@pytest.mark.parametrize("args, match", [
+    (["medium", "--tune", "20k"], "--tune 20 kHz: offsets of 3 channel spacings"),
+    (["medium", "--tune", "1M", "--spacing", "500k"], "--spacing 500 kHz: must be above 0"),
+    (["medium", "--tune", "1M", "--points", "3"], "--points 3"),
+    (["no-such-preset", "--tune", "1M"], "no-such-preset"),
+])
+def test_bad_input_one_line_exit_2_nothing_written(args, match, tmp_path, capsys):
+    out = tmp_path / "rep"
+    rc, so, err = run(["report", *args, "--no-measure", "-o", str(out)], capsys)
+    assert rc == 2
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("sdrx: error: ") and match in lines[0], err
+    assert not out.exists()
+
+
+def test_existing_output_refused(tmp_path, capsys):
+    out = tmp_path / "rep"
+    args = ["report", "wide", "--tune", "1M", "--no-measure", "-o", str(out)]
+    assert run(args, capsys)[0] == 0
+    before = {p.name: p.read_bytes() for p in out.iterdir()}
+    rc, so, err = run(args, capsys)
+    assert rc == 2 and "exists already; pass --force" in err and len(err.strip().splitlines()) == 1
+    assert {p.name: p.read_bytes() for p in out.iterdir()} == before
+    assert run([*args, "--force", "--quiet"], capsys)[:2] == (0, "")
+
+
+def test_tune_outside_capture(tmp_path, capsys):
+    import numpy as np
+    from sdrx.capture import open_writer
+
+    cap = tmp_path / "c.sigmf-meta"
+    with open_writer(cap, fs=100e3, kind="iq", datatype="cf32_le", center_hz=1e6) as w:
+        w.write(np.zeros(1000, np.complex64))
+    out = tmp_path / "rep"
+    rc, so, err = run(["report", "medium", "--tune", "1.2M", "--capture", str(cap), "--no-measure",
+                       "-o", str(out)], capsys)
+    assert rc == 2 and "outside the band of capture" in err and len(err.strip().splitlines()) == 1
+    assert not out.exists()
