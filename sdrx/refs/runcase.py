@@ -92,17 +92,29 @@ def run_case(prep: Prepared, workdir, *, progress=None) -> tuple:
 
 def _truth_path(capture: Path) -> Path:
     name = capture.name
-    for suffix in (".sigmf-meta", ".sigmf-data", ".wav", ".WAV", ".rf64", ".w64"):
-        if name.endswith(suffix):
+    for suffix in (".sigmf-meta", ".sigmf-data", ".wav"):
+        if name.lower().endswith(suffix):
             return capture.with_name(name[: -len(suffix)] + ".truth.json")
     return capture.with_name(capture.stem + ".truth.json")
+
+
+def _number(v) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool)
 
 
 def truth_tone_hz(capture: Path, tune_hz: float) -> Optional[float]:
     """Frequency of the single-tone program of the station at ``tune_hz``, from the truth sidecar.
 
-    Returns None when there is no sidecar, no station within 1 Hz of the
-    tuning, or its program is not one steady tone.
+    The sidecar is ``<stem>.truth.json`` beside the capture (written by
+    :func:`sdrx.synth.synthesize`). The station is the one whose nominal
+    frequency (``frequency_hz``) is within 1 Hz of the tuning, or else whose
+    carrier (``carrier_hz``) is within 100 Hz.
+
+    Returns
+    -------
+    float or None
+        None when there is no sidecar, no such station, or its program is
+        not one steady tone (``program.kind == "tone"`` with one frequency).
     """
     p = _truth_path(Path(capture))
     if not p.is_file():
@@ -114,20 +126,26 @@ def truth_tone_hz(capture: Path, tune_hz: float) -> Optional[float]:
     stations = truth.get("stations") if isinstance(truth, dict) else None
     if not isinstance(stations, list):
         return None
+    station = None
     for st in stations:
-        if not isinstance(st, dict):
-            continue
-        f = st.get("carrier_hz", st.get("freq_hz", st.get("frequency_hz")))
-        if not isinstance(f, (int, float)) or abs(float(f) - tune_hz) > 1.0:
-            continue
-        prog = st.get("program")
-        if isinstance(prog, dict) and prog.get("kind", prog.get("type")) == "tone":
-            tones = prog.get("freq_hz", prog.get("frequency_hz", prog.get("tone_hz")))
-            if isinstance(tones, (int, float)):
-                return float(tones)
-            if isinstance(tones, list) and len(tones) == 1 and isinstance(tones[0], (int, float)):
-                return float(tones[0])
+        if isinstance(st, dict) and _number(st.get("frequency_hz")) and abs(st["frequency_hz"] - tune_hz) <= 1.0:
+            station = st
+            break
+    if station is None:
+        for st in stations:
+            if isinstance(st, dict) and _number(st.get("carrier_hz")) and abs(st["carrier_hz"] - tune_hz) <= 100.0:
+                station = st
+                break
+    if station is None:
         return None
+    prog = station.get("program")
+    if not isinstance(prog, dict) or prog.get("kind") != "tone":
+        return None
+    tones = station.get("tones_hz")
+    if isinstance(tones, list) and len(tones) == 1 and _number(tones[0]):
+        return float(tones[0])
+    if _number(prog.get("frequency")):
+        return float(prog["frequency"])
     return None
 
 
