@@ -26,6 +26,8 @@ _BINS_PER_CHANNEL = 64   # target resolution: spacing / 64
 _MIN_BINS_PER_CHANNEL = 8
 _MIN_SEGMENTS = 16
 _LOBE = 2                # Hann main lobe half-width, bins
+_DYNAMIC_RANGE_DB = 130.0  # floor never below strongest bin minus this (float32 arithmetic spurs)
+_GUARD = 6               # a line's peak is the highest bin within this many bins either side
 _SEGMENTS_PER_BLOCK = 16
 
 
@@ -129,7 +131,9 @@ def survey(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, threshold_d
     free of the window's scalloping) less the noise N in those bins.
     Noise floor: median of the spectrum divided by the median of the
     gamma(K, 1/K) law that an average of K noise periodograms follows
-    (robust: most bins hold only noise). Source: P. D. Welch, "The use of
+    (robust: most bins hold only noise), but never more than 130 dB below
+    the strongest bin, so that the arithmetic spurs of a noiseless synthetic
+    capture are not taken for carriers. Source: P. D. Welch, "The use of
     the fast Fourier transform for the estimation of power spectra", IEEE
     Trans. Audio Electroacoust. 15 (1967); F. J. Harris, "On the use of
     windows for harmonic analysis with the DFT", Proc. IEEE 66 (1978).
@@ -193,6 +197,7 @@ def survey(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, threshold_d
         freqs = np.arange(power.size) * (info.fs / nfft)
     gamma = stats.gamma(segments, scale=1.0 / segments)
     noise = float(np.median(power)) / float(gamma.median())
+    noise = max(noise, float(np.max(power)) * 10.0 ** (-_DYNAMIC_RANGE_DB / 10.0))
     thr_used = max(thr_db, 10.0 * math.log10(float(gamma.isf(_FALSE_ALARM))))
     carriers = _find(power, freqs, info.fs / nfft, spacing, noise, 10.0 ** (thr_used / 10.0))
     floor_db = 10.0 * math.log10(noise) if noise > 0 else -math.inf
@@ -214,8 +219,11 @@ def _find(power, freqs, rbw, spacing, noise, thr_ratio) -> list:
         if b <= a:
             continue
         k = a + int(np.argmax(power[a : b + 1]))
-        # a line's peak is a local maximum inside the window (not the skirt of a neighbour)
+        # a line's peak is a local maximum inside the window and over +-_GUARD bins, not the
+        # skirt (window sidelobes, sidebands) of a stronger neighbour rising towards one edge
         if k in (a, b) or power[k] < thr_ratio * noise:
+            continue
+        if power[k] < np.max(power[max(0, k - _GUARD): k + _GUARD + 1]):
             continue
         lobe = power[k - _LOBE : k + _LOBE + 1]
         line = float(np.sum(lobe)) - lobe.size * noise

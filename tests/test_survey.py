@@ -1,0 +1,160 @@
+"""Carrier survey: every carrier of multi-station captures on 9 and 10 kHz grids, no phantoms."""
+
+import math
+
+import numpy as np
+import pytest
+
+from sdrx.analysis.survey import survey, survey_carriers
+from sdrx.capture import open_capture, open_writer
+from sdrx.errors import CaptureError, ParameterError
+
+
+@pytest.fixture
+def rng():
+    return np.random.default_rng(1975)
+
+
+def am_stations(t, stations, center_hz, rng, complex_envelope=True):
+    """Sum of AM carriers, 30 % tone modulation (bench test signal, common practice).
+
+    Level convention (contracts.md): carrier of amplitude A reads 20·log10(A) dBFS; in I/Q the
+    carrier is A·exp(j2π(f - fc)t), in real RF A·cos(2πft).
+    """
+    x = np.zeros(t.size, dtype=complex if complex_envelope else float)
+    for f, level_dbfs, err_hz in stations:
+        a = 10 ** (level_dbfs / 20)
+        tone = rng.uniform(400, 2500)
+        env = a * (1 + 0.3 * np.cos(2 * np.pi * tone * t + rng.uniform(0, 2 * np.pi)))
+        ph = rng.uniform(0, 2 * np.pi)
+        if complex_envelope:
+            x += env * np.exp(1j * (2 * np.pi * (f + err_hz - center_hz) * t + ph))
+        else:
+            x += env * np.cos(2 * np.pi * (f + err_hz) * t + ph)
+    return x
+
+
+def complex_noise(n, level_dbfs, rng):
+    s = 10 ** (level_dbfs / 20) / math.sqrt(2)
+    return s * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+
+
+def write_iq(path, x, fs, center_hz, datatype="ci16_le"):
+    with open_writer(path, fs=fs, kind="iq", datatype=datatype, center_hz=center_hz) as w:
+        for i in range(0, x.size, 100_000):
+            w.write(x[i:i + 100_000])
+    return open_capture(path)
+
+
+@pytest.mark.parametrize("spacing, channels", [
+    # source: ITU Radio Regulations / Geneva 1975 plan: 9 kHz MF channel spacing in Regions 1 and 3
+    (9e3, [531e3 + 9e3 * k for k in (8, 9, 30, 52, 53, 70)]),
+    # source: ITU Rio de Janeiro 1981 plan: 10 kHz MF channel spacing in Region 2
+    (10e3, [540e3 + 10e3 * k for k in (7, 8, 33, 47, 48, 99)]),
+])
+def test_finds_every_carrier_at_right_frequency_and_level(spacing, channels, tmp_path, rng):
+    fs, center, seconds = 1.2e6, 1.0e6, 0.5
+    n = int(fs * seconds)
+    t = np.arange(n) / fs
+    levels = [-12.0, -37.0, -20.0, -55.0, -26.0, -44.0]  # includes adjacent-channel pairs
+    errs = rng.uniform(-30, 30, len(channels))
+    x = am_stations(t, list(zip(channels, levels, errs)), center, rng) + complex_noise(n, -75, rng)
+    r = write_iq(tmp_path / "band.sigmf-meta", x, fs, center)
+    found = survey_carriers(r, spacing_hz=spacing)
+    assert sorted(c.freq_hz for c in found) == sorted(channels)
+    by_f = {c.freq_hz: c for c in found}
+    for f, lv, e in zip(channels, levels, errs):
+        assert by_f[f].level_dbfs == pytest.approx(lv, abs=1.0)  # issue requirement: +-1 dB
+        assert by_f[f].offset_hz == pytest.approx(e, abs=r.info.fs / 16384)
+    assert [c.level_dbfs for c in found] == sorted((c.level_dbfs for c in found), reverse=True)
+
+
+def test_real_capture_levels(tmp_path, rng):
+    fs, seconds = 3.6e6, 0.25
+    n = int(fs * seconds)
+    t = np.arange(n) / fs
+    stations = [(610e3, -6.0, 0.0), (1130e3, -30.0, 12.0), (1650e3, -48.0, -20.0)]
+    x = am_stations(t, stations, 0.0, rng, complex_envelope=False)
+    x += 10 ** (-70 / 20) * rng.standard_normal(n)
+    p = tmp_path / "rf.wav"
+    with open_writer(p, fs=fs, kind="real", datatype="rf32_le") as w:
+        w.write(x)
+    res = survey(open_capture(p), spacing_hz="10k")
+    got = [(c.freq_hz, c.level_dbfs) for c in res.carriers]
+    assert [g[0] for g in got] == [610e3, 1130e3, 1650e3]
+    for (f, lv, _), (_, g) in zip(stations, got):
+        assert g == pytest.approx(lv, abs=1.0)
+
+
+@pytest.mark.parametrize("frac", [0.0, 0.25, 0.5])
+def test_level_free_of_scalloping(frac, tmp_path):
+    # a pure line between FFT bins reads the same level (Parseval over the main lobe)
+    fs, n, center = 1.2e6, 600_000, 1e6
+    rbw = fs / 16384
+    t = np.arange(n) / fs
+    x = 0.1 * np.exp(2j * np.pi * (30e3 + frac * rbw) * t)
+    r = write_iq(tmp_path / "l.sigmf-meta", x, fs, center, datatype="cf32_le")
+    (c,) = survey_carriers(r)
+    assert c.freq_hz == 1030e3
+    assert c.level_dbfs == pytest.approx(20 * math.log10(0.1), abs=0.05)
+
+
+@pytest.mark.parametrize("seed", range(6))
+@pytest.mark.parametrize("spacing", ["9k", "10k"])
+def test_no_phantom_carriers_in_noise(seed, spacing, tmp_path):
+    rng = np.random.default_rng(seed)
+    fs, n = 1.2e6, 400_000
+    r = write_iq(tmp_path / "n.sigmf-meta", complex_noise(n, -30, rng), fs, 1e6, datatype="cf32_le")
+    res = survey(r, spacing_hz=spacing)
+    assert res.carriers == ()
+    # the floor: noise power sigma^2 spread over nfft bins (in the line-level units of the survey)
+    assert res.noise_floor_dbfs == pytest.approx(-30 - 10 * math.log10(res.nfft), abs=0.5)
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_no_phantoms_in_a_short_excerpt(seed, tmp_path):
+    # few segments: noise fluctuates more, the threshold rises with it
+    rng = np.random.default_rng(100 + seed)
+    fs = 1.2e6
+    r = write_iq(tmp_path / "s.sigmf-meta", complex_noise(200_000, -30, rng), fs, 1e6, datatype="cf32_le")
+    res = survey(r, spacing_hz="10k", duration_s=3000 / fs)
+    assert res.segments <= 3
+    assert res.threshold_db > 10.0
+    assert res.carriers == ()
+
+
+def test_threshold_separates_weak_from_clear(tmp_path, rng):
+    fs, n, center = 1.2e6, 600_000, 1e6
+    t = np.arange(n) / fs
+    x = complex_noise(n, -40, rng)
+    floor_db = -40 - 10 * math.log10(16384)  # per-bin noise, same units as a line level
+    x = x + 10 ** ((floor_db + 25) / 20) * np.exp(2j * np.pi * 50e3 * t)   # 25 dB above: found
+    x = x + 10 ** ((floor_db + 4) / 20) * np.exp(2j * np.pi * -120e3 * t)  # 4 dB above: not a carrier
+    r = write_iq(tmp_path / "t.sigmf-meta", x, fs, center, datatype="cf32_le")
+    res = survey(r)
+    assert [c.freq_hz for c in res.carriers] == [1050e3]
+    assert res.carriers[0].level_dbfs == pytest.approx(floor_db + 25, abs=1.0)
+
+
+def test_excerpt_and_progress(tmp_path, rng):
+    fs, n, center = 1.2e6, 1_200_000, 1e6
+    t = np.arange(n) / fs
+    x = complex_noise(n, -60, rng) + 0.1 * np.exp(2j * np.pi * 20e3 * t)
+    x[n // 2:] += 0.05 * np.exp(2j * np.pi * -200e3 * t[n // 2:])  # a station that starts at 0.5 s
+    r = write_iq(tmp_path / "e.sigmf-meta", x, fs, center)
+    calls = []
+    first_half = survey_carriers(r, duration_s=0.5, progress=lambda d, tot: calls.append((d, tot)))
+    assert [c.freq_hz for c in first_half] == [1020e3]
+    assert calls[-1] == (600_000, 600_000) and all(b == 600_000 for _, b in calls)
+    second_half = survey_carriers(r, start_s=0.5)
+    assert [c.freq_hz for c in second_half] == [1020e3, 800e3]
+
+
+def test_bad_spacing_and_short_capture(tmp_path, rng):
+    r = write_iq(tmp_path / "b.sigmf-meta", complex_noise(1000, -30, rng), 1.2e6, 1e6)
+    with pytest.raises(ParameterError, match="--spacing: must be positive"):
+        survey(r, spacing_hz=0)
+    with pytest.raises(ParameterError, match="--spacing 1e.06: must be well below"):
+        survey(r, spacing_hz="1M")
+    with pytest.raises(CaptureError, match="too short to survey"):
+        survey(r, spacing_hz="10k")
