@@ -9,32 +9,30 @@ from __future__ import annotations
 import numpy as np
 from scipy import signal
 
-from ..units import db10, db20
+from ..units import db10
 
 __all__ = [
     "selectivity_curve",
-    "crossing_width",
     "designed_figures",
     "audio_bandwidth_hz",
     "sinad_db",
 ]
 
-#: RF offsets of the selectivity grid: ±150 kHz in 25 Hz steps
-_SPAN_HZ = 150e3
+#: RF offsets of the plotted selectivity curves: ±30 kHz in 25 Hz steps
+_SPAN_HZ = 30e3
 _STEP_HZ = 25.0
 
 
 def selectivity_curve(design, tune_hz: float, offsets_hz=None):
-    """Relative RF selectivity of a chain: dB at ``tune_hz + offsets_hz`` re the tune.
+    """Relative RF selectivity of a chain for the plot: dB at ``tune_hz + offsets_hz`` re the tune.
 
     Parameters
     ----------
     design : ChainDesign
-        Anything with ``rf_response(f_hz, tune_hz)`` (complex, antenna to IF output).
     tune_hz : float
         The station's carrier frequency.
     offsets_hz : array_like, optional
-        Offsets from the tune; default ±150 kHz in 25 Hz steps.
+        Offsets from the tune; default ±30 kHz in 25 Hz steps.
 
     Returns
     -------
@@ -42,69 +40,31 @@ def selectivity_curve(design, tune_hz: float, offsets_hz=None):
 
     Notes
     -----
-    ``20·log10(|H(f_t + Δf)| / |H(f_t)|)``, H the design's RF response (single-signal
-    selectivity, AGC off: ITU-R SM.332).
+    :func:`sdrx.analysis.selectivity.relative_response_db`: ``20·log10(|H(f_t + Δf)| / |H(f_t)|)``
+    with H the design's RF response (single-signal selectivity, AGC off: ITU-R SM.332).
+
+    Examples
+    --------
+    >>> from sdrx.chain import design_chain
+    >>> off, db = selectivity_curve(design_chain("medium"), 1e6, [0.0, 10e3])
+    >>> float(db[0]), bool(db[1] < -20)
+    (0.0, True)
     """
+    from ..analysis.selectivity import relative_response_db
+
     if offsets_hz is None:
         n = int(round(_SPAN_HZ / _STEP_HZ))
         offsets_hz = np.arange(-n, n + 1) * _STEP_HZ
     off = np.asarray(offsets_hz, dtype=float)
-    h = np.asarray(design.rf_response(tune_hz + off, tune_hz), dtype=complex)
-    h0 = complex(np.asarray(design.rf_response(np.array([tune_hz], dtype=float), tune_hz)).reshape(-1)[0])
-    return off, db20(h / h0)
-
-
-def _edge(off, db, level_db, side):
-    """Offset where the curve first falls to ``level_db`` going out from 0 on ``side`` (+1/-1)."""
-    centre = int(np.argmin(np.abs(off)))
-    idx = np.arange(centre, off.size) if side > 0 else np.arange(centre, -1, -1)
-    vals = db[idx]
-    below = np.nonzero(vals <= level_db)[0]
-    if below.size == 0:
-        return None
-    j = below[0]
-    if j == 0:
-        return float(off[idx[0]])
-    i0, i1 = idx[j - 1], idx[j]
-    d0, d1 = db[i0], db[i1]
-    frac = 0.0 if d0 == d1 or not np.isfinite(d1) else (d0 - level_db) / (d0 - d1)
-    return float(off[i0] + frac * (off[i1] - off[i0]))
-
-
-def crossing_width(offsets_hz, response_db, level_db: float):
-    """Full width of a selectivity curve at ``level_db`` (e.g. −6), Hz, or None.
-
-    The first crossing on each side of the tune, linearly interpolated; None
-    when the curve does not fall that far within the grid.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> off = np.linspace(-10e3, 10e3, 2001)
-    >>> round(crossing_width(off, -np.abs(off) / 1e3, -6.0))
-    12000
-    """
-    off = np.asarray(offsets_hz, dtype=float)
-    db = np.asarray(response_db, dtype=float)
-    hi = _edge(off, db, level_db, +1)
-    lo = _edge(off, db, level_db, -1)
-    if hi is None or lo is None:
-        return None
-    return hi - lo
-
-
-def _rel_db(design, f_hz, tune_hz):
-    h = np.asarray(design.rf_response(np.array([f_hz, tune_hz], dtype=float), tune_hz), dtype=complex)
-    return float(db20(h[0] / h[1]))
+    return off, np.asarray(relative_response_db(design, tune_hz, tune_hz + off), dtype=float)
 
 
 def designed_figures(design, tune_hz: float, spacing_hz: float) -> dict:
-    """Bandwidths and rejections of a chain design at one tuning.
+    """Bandwidths and rejections of a chain design at one tuning, as compare.json holds them.
 
     Parameters
     ----------
     design : ChainDesign
-        With ``rf_response(f_hz, tune_hz)`` and ``image_hz(tune_hz)``.
     tune_hz : float
         The station's carrier frequency.
     spacing_hz : float
@@ -113,31 +73,43 @@ def designed_figures(design, tune_hz: float, spacing_hz: float) -> dict:
     Returns
     -------
     dict
-        ``bandwidth_6db_hz``, ``bandwidth_60db_hz`` (None if not reached within
-        ±150 kHz), ``shape_factor`` (60 dB / 6 dB width), ``adjacent_rejection_db``
-        {``lower``, ``upper``, ``worst``}, ``image_hz``, ``image_rejection_db``.
+        ``bandwidth_6db_hz``, ``bandwidth_60db_hz`` (None if not reached),
+        ``shape_factor`` (60 dB / 6 dB width), ``adjacent_rejection_db``
+        {``lower``, ``upper``, ``worst``} at ``tune ∓ spacing``, ``spacing_hz``,
+        ``image_hz``, ``image_rejection_db``.
+
+    Raises
+    ------
+    ParameterError
+        From :func:`sdrx.analysis.selectivity.validate_tuning` (tune or spacing unusable).
 
     Notes
     -----
-    Rejection is the response at the tune over the response at the other
-    frequency, in dB, equal inputs (image rejection ratio: Federal Standard
-    1037C); the adjacent channels are ``tune ± spacing``.
+    The figures are :func:`sdrx.analysis.selectivity.designed_figures` (the
+    report's), reshaped. Rejection is the response at the tune over the
+    response at the other frequency, equal inputs (Federal Standard 1037C).
+
+    Examples
+    --------
+    >>> from sdrx.chain import design_chain
+    >>> f = designed_figures(design_chain("narrow"), 1e6, 10e3)
+    >>> f["bandwidth_6db_hz"] < 6e3 < f["bandwidth_60db_hz"]
+    True
     """
-    off, db = selectivity_curve(design, tune_hz)
-    bw6 = crossing_width(off, db, -6.0)
-    bw60 = crossing_width(off, db, -60.0)
-    lower = -_rel_db(design, tune_hz - spacing_hz, tune_hz)
-    upper = -_rel_db(design, tune_hz + spacing_hz, tune_hz)
-    image_hz = float(design.image_hz(tune_hz))
-    image = -_rel_db(design, image_hz, tune_hz)
+    from ..analysis import selectivity
+
+    fig = selectivity.designed_figures(design, tune_hz, spacing_hz)
+    adj = fig.adjacent_rejection_db
+    lower = adj[str(int(round(-spacing_hz)))]
+    upper = adj[str(int(round(spacing_hz)))]
     return {
-        "bandwidth_6db_hz": bw6,
-        "bandwidth_60db_hz": bw60,
-        "shape_factor": (bw60 / bw6) if (bw6 and bw60) else None,
+        "bandwidth_6db_hz": fig.bandwidth_hz["6"],
+        "bandwidth_60db_hz": fig.bandwidth_hz["60"],
+        "shape_factor": fig.shape_factor,
         "adjacent_rejection_db": {"lower": lower, "upper": upper, "worst": min(lower, upper)},
         "spacing_hz": float(spacing_hz),
-        "image_hz": image_hz,
-        "image_rejection_db": image,
+        "image_hz": float(design.image_hz(tune_hz)),
+        "image_rejection_db": fig.image_rejection_db,
     }
 
 

@@ -336,7 +336,6 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
     """
     from ..capture import open_capture
     from ..chain import design_chain
-    from ..run import receive
 
     tune = parse_frequency(tune_hz, "--tune")
     spacing = parse_frequency(spacing_hz, "--spacing")
@@ -352,6 +351,10 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
             if msg.startswith("--chain "):
                 msg = msg[len("--chain "):]
             raise ParameterError(f"SPEC {i + 1} ({c.arg}): {msg}") from None
+    from ..analysis.selectivity import validate_tuning
+
+    for d in designs:
+        validate_tuning(d, tune, spacing)
     plan_n = blind
     if isinstance(plan_n, bool) or not isinstance(plan_n, (int, np.integer)):
         raise ParameterError(f"--blind: {blind!r}; give a whole number of trials")
@@ -399,6 +402,8 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
 
     # ---- receive every spec into a temporary folder --------------------------------------
     import soundfile as sf
+
+    from ..run import receive
 
     n_capture = int(round(duration * info.fs))
     total = n_capture * len(choices)

@@ -11,23 +11,20 @@ __all__ = ["truth_path", "station_at", "single_tone_hz"]
 
 #: how far a station's carrier may be from the tune and still be "the station at the tune"
 TUNE_TOLERANCE_HZ = 1000.0
-_FREQ_KEYS = ("freq_hz", "carrier_hz", "frequency_hz")
+_FREQ_KEYS = ("carrier_hz", "frequency_hz")  # as sent (with its error), as announced
 
 
 def truth_path(capture_path) -> Path:
-    """``<stem>.truth.json`` beside the capture (stem without ``.sigmf-meta``/``.sigmf-data``/``.wav``).
+    """``<stem>.truth.json`` beside the capture (the synthesizer's rule, :func:`sdrx.synth.truth_path_for`).
 
     Examples
     --------
     >>> truth_path("demo/coast.sigmf-meta").name
     'coast.truth.json'
     """
-    p = Path(capture_path)
-    name = p.name
-    for suffix in (".sigmf-meta", ".sigmf-data", ".sigmf"):
-        if name.endswith(suffix):
-            return p.with_name(name[: -len(suffix)] + ".truth.json")
-    return p.with_name(p.stem + ".truth.json")
+    from ..synth import truth_path_for
+
+    return truth_path_for(capture_path)
 
 
 def _station_freq(st):

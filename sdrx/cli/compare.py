@@ -1,0 +1,61 @@
+"""``sdrx compare``: A/B(/X) listening page for several chains on the same excerpt."""
+
+from __future__ import annotations
+
+import click
+
+from .common import capture_kwargs, capture_options, progress_for
+
+__all__ = ["command"]
+
+
+@click.command("compare")
+@click.argument("capture", metavar="CAPTURE")
+@click.argument("specs", nargs=-1, metavar="SPEC_A SPEC_B [SPEC_C ...]")
+@click.option("--tune", required=True, metavar="F", help="Tuned carrier, e.g. 1130k.")
+@click.option("-o", "--output", "out_dir", required=True, metavar="DIR",
+              help="Folder for the WAVs, compare.json and index.html (created if missing).")
+@click.option("--blind", default=0, show_default=True, type=int, metavar="N",
+              help="Number of blind A/B/X trials on the page.")
+@click.option("--seed", default=None, type=int, metavar="K",
+              help="Seed for drawing X (default: a fresh one, written only to the key file).")
+@click.option("--spacing", default="10k", show_default=True, metavar="F",
+              help="Channel spacing for the adjacent-channel figures (9k or 10k at MF).")
+@click.option("--path", "path", type=click.Choice(["fast", "exact"]), default="fast", show_default=True,
+              help="Execution path of the receiver.")
+@click.option("--force", is_flag=True, help="Write into DIR although it is not empty.")
+@click.option("--quiet", is_flag=True, help="No progress bar and no summary line.")
+@capture_options
+def command(capture, specs, tune, out_dir, blind, seed, spacing, path, force, quiet,
+            datatype, rate, center, start, duration):
+    """Compare chains by ear: the same excerpt through each, aligned and loudness-matched.
+
+    Example:
+
+        sdrx compare demo_signals/coast.sigmf-meta --tune 1130k wide narrow -o demo_out/compare --blind 10
+
+    Each SPEC is a preset name or a chain TOML file, optionally with a label:
+    SPEC@LABEL (e.g. medium@medium-again to compare a chain with itself).
+    Writes DIR/LABEL.wav per spec, DIR/compare.json, DIR/index.html (open it
+    in a browser; it plays the WAVs beside it) and, with --blind,
+    DIR/blind-key.json. The excerpt is --start/--duration, by default the first
+    30 s (at most 120 s).
+    """
+    from ..compare.run import compare
+
+    bar = progress_for("receiving", quiet)
+    try:
+        result = compare(capture, tune, specs, out_dir, start_s=start, duration_s=duration, blind=blind,
+                         seed=seed, spacing_hz=spacing, path=path, force=force, progress=bar,
+                         **capture_kwargs(datatype, rate, center))
+    finally:
+        if bar is not None:
+            bar.close()
+    if not quiet:
+        from pathlib import Path
+
+        lo = result["loudness"]
+        click.echo(f"{Path(out_dir) / result['page']}: {len(result['specs'])} outputs at "
+                   f"{lo['target_lufs']:.1f} LUFS (set by {lo['limited_by']}'s peak)"
+                   + (f", {len(result['trials'])} blind trials, key in {Path(out_dir) / result['key_file']}"
+                      if result["key_file"] else ""))
