@@ -201,15 +201,25 @@ class Datatype:
             if np.iscomplexobj(a):
                 raise ParameterError(f"datatype {self.name}: is real; got complex samples")
             comp = a.reshape(-1)
-        if comp.size and not np.isfinite(comp).all():
+        with np.errstate(over="ignore", invalid="ignore"):
+            maybe_bad = comp.size and not np.isfinite(np.add.reduce(comp, dtype=np.float64))
+        if maybe_bad and not np.isfinite(comp).all():
             bad = int(np.flatnonzero(~np.isfinite(comp))[0]) // self.components
             raise ParameterError(f"datatype {self.name}: sample {bad} to write is not finite")
         if self.base == "f":
             return comp.astype(self.component_dtype), 0
         lo, hi = self.code_range
-        v = np.rint(comp.astype(np.float64) * (1.0 / self.scale) + self.offset)
-        clipped = int(np.count_nonzero((v < lo) | (v > hi)))
-        np.clip(v, lo, hi, out=v)
+        if self.base == "i" and self.bits <= 16 and comp.dtype == np.float32:
+            # exact in float32: the scale is a power of two and every code fits in 24 bits
+            v = comp * np.float32(1.0 / self.scale)
+        else:
+            v = comp.astype(np.float64) * (1.0 / self.scale)
+            if self.offset:
+                v += self.offset
+        np.rint(v, out=v)
+        clipped = int(np.count_nonzero(v > hi)) + int(np.count_nonzero(v < lo))
+        if clipped:
+            np.clip(v, lo, hi, out=v)
         return v.astype(self.component_dtype), clipped
 
 
