@@ -270,3 +270,40 @@ def test_audio_refuses_existing_and_bad_shapes(tmp_path):
         with AudioWriter(q, 8000, channels=2) as a:
             a.write(np.zeros(10))
     assert not q.exists() and sorted(x.name for x in tmp_path.iterdir()) == ["e.wav"]
+
+
+def test_audio_rate_from_a_quotient_is_accepted(tmp_path):
+    fs = 2.4e6 / 150 * (1 + 1e-15)  # float rounding of a computed rate
+    with AudioWriter(tmp_path / "q.wav", fs) as a:
+        a.write(np.zeros(10))
+    assert soundfile.info(tmp_path / "q.wav").samplerate == 16000
+
+
+# --- property test over WAV headers and block sizes ------------------------------------------------
+
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(name=st.sampled_from(["ri16_le", "ci16_le", "rf32_le", "cf32_le"]), n=st.integers(0, 300),
+       block=st.integers(1, 400), fs=st.integers(1, 10_000_000), expected=st.booleans(),
+       desc=st.one_of(st.none(), st.text(max_size=20)), seed=st.integers(0, 2**32 - 1))
+def test_property_wav_capture_headers(tmp_path, name, n, block, fs, expected, desc, seed):
+    dt = parse_datatype(name)
+    x = signal(dt, n, np.random.default_rng(seed))
+    p = tmp_path / f"h{seed}.wav"
+    meta = {"description": desc} if desc else None
+    write(p, x, block=block, fs=fs, kind=dt.kind, datatype=name, meta=meta,
+          expected_samples=n if expected else None, force=True)
+    info = soundfile.info(p)  # source: soundfile (libsndfile) parses the header
+    assert (info.samplerate, info.frames, info.channels) == (fs, n, dt.components)
+    assert info.subtype == ("FLOAT" if dt.is_float else "PCM_16")
+    b = p.read_bytes()
+    assert struct.unpack("<I", b[4:8])[0] == len(b) - 8  # RIFF size field
+    if n:
+        r = open_capture(p, center_hz=1e6 if dt.is_complex else None)
+        ref, _ = soundfile.read(p, dtype="float32", always_2d=True)
+        want = ref[:, 0] + 1j * ref[:, 1] if dt.is_complex else ref[:, 0]
+        got = np.concatenate(list(r.blocks(block)))
+        np.testing.assert_array_equal(got, want.astype(got.dtype))

@@ -125,7 +125,8 @@ class WavStream:
         if channels not in (1, 2):
             raise ParameterError(f"channels: must be 1 or 2, got {channels!r}")
         rate = float(fs)
-        if not (rate > 0 and rate == round(rate) and rate <= 0xFFFFFFFF):
+        # a rate computed as a quotient (2.4e6 / 150) may miss the integer by float rounding
+        if not (rate > 0 and abs(rate - round(rate)) <= 1e-9 * rate and rate <= 0xFFFFFFFF):
             raise ParameterError(f"{path}: WAV needs a whole positive number of samples per second, got {fs!r}")
         self.path = Path(path)
         self.fs = int(round(rate))
