@@ -297,3 +297,23 @@ def test_property_partial_sample_always_refused(tmp_path, name, n, extra):
     p.write_bytes(bytes(n * dt.sample_bytes + extra))
     with pytest.raises(CaptureError, match="not a whole number of"):
         open_capture(p, datatype=name, fs=1e6, center_hz=1e6 if dt.is_complex else None)
+
+
+def test_memory_bounded_by_block_size_not_file_size(tmp_path):
+    import tracemalloc
+
+    peaks = []
+    for n in (100_000, 1_000_000):
+        p = tmp_path / f"m{n}.raw"
+        np.zeros(2 * n, "<i2").tofile(p)
+        r = open_capture(p, datatype="ci16_le", fs=1e6, center_hz=1e6)
+        tracemalloc.start()
+        total = 0
+        for b in r.blocks(4096):
+            total += b.shape[0]
+        peaks.append(tracemalloc.get_traced_memory()[1])
+        tracemalloc.stop()
+        assert total == n
+    # a tenfold larger file needs no more memory: a few blocks of 4096 samples (32 kB each)
+    assert peaks[1] < 4 * 4096 * 8 + 64 * 1024
+    assert peaks[1] <= 1.5 * peaks[0] + 16 * 1024
