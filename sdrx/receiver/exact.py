@@ -1,0 +1,275 @@
+"""Exact path: a real IF signal at an IF sample rate that holds every mixing product.
+
+1. The capture becomes the real RF signal at the IF sample rate fs_if, with
+   the preselector applied on the way (frequency-domain overlap-save: each
+   input bin moved to its absolute RF frequency, weighted by the preselector's
+   analog response, inverse real FFT at the higher rate).
+2. The mixer really multiplies: r·cos(2π f_LO t) (real), or
+   r·(cos + jsγ sin(·+φ)) for a quadrature (image-reject) mixer with
+   imbalance, s = +1 high-side, −1 low-side. The image folds onto the IF.
+3. Each IF stage is its analog prototype discretised at fs_if with the
+   matched-z transform (gain matched at the IF).
+4. The channelizer brings the IF output down to the channel rate as the
+   complex envelope around +f_IF, which feeds the same AGC, detector and
+   audio code as the fast path.
+
+fs_if is chosen above 2·(top of the captured band + f_LO), so that no sum
+product aliases.
+"""
+
+from __future__ import annotations
+
+import math
+from fractions import Fraction
+
+import numpy as np
+import scipy.fft as sfft
+from scipy import signal
+
+from ..errors import ParameterError
+from ..units import format_frequency
+from ..dsp.channelizer import ChannelSpec, Channelizer, passband_window, plan_channelizer
+from ..dsp.discretize import matched_z
+
+__all__ = ["ExactFrontEnd", "choose_if_rate"]
+
+TWO_PI = 2.0 * math.pi
+
+
+def choose_if_rate(fs: float, band_top_hz: float, lo_hz: float) -> float:
+    """Smallest multiple of fs/2 (at least fs) above 2.1·(band top + LO).
+
+    Examples
+    --------
+    >>> choose_if_rate(2.4e6, 2.4e6, 1.455e6)
+    9600000.0
+    """
+    need = 2.1 * (band_top_hz + lo_hz)
+    k = max(2, math.ceil(need / (fs / 2)))
+    return k * fs / 2
+
+
+class _RfSynthesizer:
+    """Capture samples -> real RF at fs_if, preselector applied (overlap-save)."""
+
+    def __init__(self, fs, fs_if, kind, center_hz, pre_response, overlap, first_sample):
+        self.kind = kind
+        U = Fraction(fs_if).limit_denominator(1000) / Fraction(fs).limit_denominator(1000)
+        n_s = 8192
+        while n_s < 4 * overlap:
+            n_s *= 2
+        if (U * n_s).denominator != 1 or int(U * n_s) % 2:
+            raise ParameterError(f"IF sample rate {fs_if:g} Hz is not a usable multiple of the capture rate {fs:g} Hz")
+        self.U = U
+        self.n_s, self.p_s = n_s, overlap
+        self.l_s = n_s - overlap
+        self.n_o = int(U * n_s)
+        self.p_o = int(U * overlap)
+        self.l_o = self.n_o - self.p_o
+        if (U * overlap).denominator != 1 or (U * overlap / 2).denominator != 1:
+            raise ParameterError(f"IF sample rate {fs_if:g} Hz is not a usable multiple of the capture rate {fs:g} Hz")
+        self.fs, self.fs_if = fs, fs_if
+        df = fs / n_s
+        if kind == "iq":
+            kc_exact = center_hz / df
+            self.kc = int(round(kc_exact))
+            self.shift_hz = center_hz - self.kc * df   # done by an oscillator at the capture rate
+            f_in = np.fft.fftfreq(n_s, 1.0 / fs)
+            k_in = np.fft.fftfreq(n_s, 1.0 / n_s).astype(int)
+            k_out = k_in + self.kc
+            f_rf = k_out * df
+            w = passband_window(f_in, 0.45 * fs, 0.5 * fs)
+        else:
+            self.kc = 0
+            self.shift_hz = 0.0
+            k_in = np.arange(n_s // 2 + 1)
+            k_out = k_in
+            f_rf = k_in * df
+            w = passband_window(f_rf, 0.45 * fs, 0.5 * fs)
+        # no RF below a few kHz: taper to zero at DC
+        w = w * np.clip((f_rf - 5e3) / 15e3, 0.0, 1.0)
+        ok = (k_out > 0) & (k_out < self.n_o // 2) & (w > 0)
+        G = np.zeros(len(k_in), complex)
+        G[ok] = w[ok] * pre_response(f_rf[ok])
+        # prototype: response G at absolute RF, as an FIR of P+1 taps centred at P/2 (input samples)
+        # build the time-domain filter in the capture's own frequency axis (offset by the centre)
+        if kind == "iq":
+            g_full = np.fft.ifft(G)
+        else:
+            g_full = np.fft.irfft(G, n_s)
+        n = np.arange(-overlap // 2, overlap // 2 + 1)
+        g = g_full[n % n_s] * signal.windows.tukey(overlap + 1, 0.3)
+        Gs = np.fft.fft(g, n_s) if kind == "iq" else np.fft.rfft(g, n_s)
+        self.k_in = k_in[ok]
+        self.k_out = k_out[ok]
+        self.H = (Gs[ok] * (0.5 if kind == "iq" else 1.0) * float(U)).astype(np.complex64)
+        dtype = np.complex64 if kind == "iq" else np.float32
+        self._dtype = dtype
+        self._buf = np.zeros(overlap, dtype)
+        self._start = first_sample - overlap      # absolute index of _buf[0]
+        self._drop = self.p_o // 2                # FIR centring delay at fs_if
+        self.out_start = first_sample * U         # absolute IF-rate index of the first output sample
+
+    def process(self, x, final=False):
+        x = np.asarray(x, self._dtype)
+        if self.shift_hz:
+            n = self._start + len(self._buf) + np.arange(len(x))
+            x = (x * np.exp(1j * TWO_PI * self.shift_hz * (n.astype(np.float64) / self.fs))).astype(self._dtype)
+        self._buf = np.concatenate([self._buf, x])
+        n_seg = (len(self._buf) - self.p_s) // self.l_s
+        outs = []
+        for b0 in range(0, n_seg, 8):
+            b = min(8, n_seg - b0)
+            view = np.lib.stride_tricks.sliding_window_view(
+                self._buf[b0 * self.l_s: b0 * self.l_s + (b - 1) * self.l_s + self.n_s], self.n_s)[::self.l_s]
+            X = sfft.fft(view, axis=1, workers=2) if self.kind == "iq" else sfft.rfft(view, axis=1, workers=2)
+            Y = np.zeros((b, self.n_o // 2 + 1), np.complex64)
+            Y[:, self.k_out] = X[:, self.k_in] * self.H
+            # the centre shift by kc bins moves each segment's start phase by kc·start/n_s cycles
+            if self.kind == "iq" and self.kc:
+                starts = self._start + (b0 + np.arange(b, dtype=np.int64)) * self.l_s
+                ph = np.exp(1j * TWO_PI * ((self.kc * (starts % self.n_s)) % self.n_s) / self.n_s)
+                Y *= ph.astype(np.complex64)[:, None]
+            r = sfft.irfft(Y, self.n_o, axis=1, workers=2)[:, self.p_o:]
+            outs.append(r.reshape(-1))
+        consumed = n_seg * self.l_s
+        self._buf = self._buf[consumed:]
+        self._start += consumed
+        r = np.concatenate(outs) if outs else np.zeros(0)
+        if self._drop:
+            k = min(self._drop, len(r))
+            r = r[k:]
+            self._drop -= k
+        return r
+
+    def flush(self):
+        pad = self.p_s + ((-(len(self._buf))) % self.l_s)
+        return self.process(np.zeros(pad, self._dtype))
+
+
+class ExactFrontEnd:
+    """Capture samples -> IF output complex envelope at the channel rate, through a real IF."""
+
+    def __init__(self, design, plan, info, tune_hz, first_sample=0, if_rate_hz=None):
+        self.design = design
+        self.warnings: list = []
+        lo_band, hi_band = info.band_hz
+        f_lo = design.lo_hz(tune_hz)
+        if_hz = design.if_hz
+        top_product = hi_band + f_lo
+        if if_rate_hz is None:
+            fs_if = choose_if_rate(info.fs, hi_band, f_lo)
+        else:
+            fs_if = float(if_rate_hz)
+            if if_hz >= fs_if / 2:
+                raise ParameterError(
+                    f"--if-rate {format_frequency(fs_if)}: the IF {format_frequency(if_hz)} is above half the IF sample rate"
+                )
+            if f_lo >= fs_if / 2:
+                raise ParameterError(
+                    f"--if-rate {format_frequency(fs_if)}: the LO {format_frequency(f_lo)} falls outside what "
+                    f"that rate can represent (needs above {format_frequency(2 * f_lo)})"
+                )
+            if 2 * top_product >= fs_if:
+                raise ParameterError(
+                    f"--if-rate {format_frequency(fs_if)}: too low to hold every mixing product of the captured band "
+                    f"(needs above {format_frequency(2 * top_product)})"
+                )
+        if f_lo <= 0:
+            raise ParameterError(f"--tune {format_frequency(tune_hz)}: low-side LO would be at {format_frequency(f_lo)}")
+        self.fs_if = fs_if
+        self.f_lo = f_lo
+        pre = design.preselector
+        zpk = pre.zpk(tune_hz)
+        overlap = 1024
+        if zpk is not None:
+            sigma = float(np.min(-np.real(zpk[1])))
+            need = int(math.ceil(12.0 / sigma * info.fs))
+            while overlap < need:
+                overlap *= 2
+        self.synth = _RfSynthesizer(info.fs, fs_if, info.kind, info.center_hz,
+                                    lambda f: pre.response(f, tune_hz), overlap, first_sample)
+        self.quadrature = design.mixer.kind == "quadrature"
+        self.gamma = design.mixer.gamma
+        self.phi = design.mixer.phi_rad
+        self.sgn = 1.0 if design.injection == "high" else -1.0
+        self._n_if = int(self.synth.out_start)    # absolute IF-rate index of the next sample
+        self._lo_cycles = Fraction(f_lo) / Fraction(fs_if)   # exact: the LO is never rounded
+        q = self._lo_cycles.denominator
+        if q <= (1 << 21):
+            # the LO repeats every q samples: one period of cos (and sin) in a table
+            k = np.arange(q)
+            ph = TWO_PI * ((self._lo_cycles.numerator * k) % q) / q
+            self._lo_table = np.cos(ph)
+            self._lo_table_q = (self.sgn * self.gamma * np.sin(ph + self.phi)) if self.quadrature else None
+            self._lo_q = q
+        else:
+            self._lo_table = None
+
+        sos = []
+        for st in design.stages:
+            zd, pd, kd = matched_z(st.z, st.p, st.k, fs_if, st.f0_hz)
+            # a real filter cannot match the phase too: match the magnitude at the IF
+            sos.append(signal.zpk2sos(zd, pd, float(abs(kd)) * (1.0 if np.real(kd) >= 0 else -1.0)))
+        self.sos = np.vstack(sos)
+        zdt = complex if self.quadrature else float
+        self.zi = np.zeros((self.sos.shape[0], 2), zdt)
+        self.plan_if = plan_channelizer(fs_if, plan.fs_ch)
+        self.channelizer = Channelizer(self.plan_if, self.quadrature, [ChannelSpec(if_hz)],
+                                       first_sample=self._n_if, batch=8,
+                                       dtype=np.complex128 if self.quadrature else np.float64)
+        self._drop = self.plan_if.delay_out
+
+    def _lo_slice(self, name: str, off: int, n: int):
+        """n samples of a periodic LO table from offset off (tables are extended once, as needed)."""
+        table = getattr(self, name)
+        if off + n > len(table):
+            q = self._lo_q
+            table = np.tile(table[:q], (off + n + q - 1) // q + 1)
+            setattr(self, name, table)
+        return table[off:off + n]
+
+    def _lo_phase(self, n0: int, length: int) -> np.ndarray:
+        # exact fractional cycles at the block start, then a float ramp
+        c = self._lo_cycles
+        start = float((c * n0) % 1)
+        return TWO_PI * (start + float(c) * np.arange(length))
+
+    def _mix_and_filter(self, r: np.ndarray) -> np.ndarray:
+        if len(r) == 0:
+            return np.zeros(0)
+        if self._lo_table is not None:
+            off = self._n_if % self._lo_q
+            c = self._lo_slice("_lo_table", off, len(r))
+            if self.quadrature:
+                m = r * (c + 1j * self._lo_slice("_lo_table_q", off, len(r)))
+            else:
+                m = r * c
+        else:
+            ph = self._lo_phase(self._n_if, len(r))
+            if self.quadrature:
+                m = r * (np.cos(ph) + 1j * self.sgn * self.gamma * np.sin(ph + self.phi))
+            else:
+                m = r * np.cos(ph)
+        self._n_if += len(r)
+        y, self.zi = signal.sosfilt(self.sos, m, zi=self.zi)
+        return y
+
+    def _down(self, outs):
+        u = outs[0]
+        if self._drop:
+            k = min(self._drop, len(u))
+            u = u[k:]
+            self._drop -= k
+        return u
+
+    def process(self, x):
+        y = self._mix_and_filter(self.synth.process(x))
+        return self._down(self.channelizer.process(y))
+
+    def flush(self):
+        y = self._mix_and_filter(self.synth.flush())
+        a = self._down(self.channelizer.process(y))
+        b = self._down(self.channelizer.process(np.zeros(self.plan_if.overlap, self.channelizer.dtype)))
+        c = self._down(self.channelizer.flush())
+        return np.concatenate([a, b, c])

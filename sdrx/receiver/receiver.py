@@ -1,0 +1,192 @@
+"""A chain bound to a capture: design + sample rate + tuning, with state.
+
+Feeding a :class:`Receiver` the capture in blocks of any size gives the same
+audio as feeding it all at once: every stage works on whole internal
+segments (the channelizer's hop), whatever the caller's block size.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..errors import ParameterError
+from ..units import db20, format_frequency
+from ..dsp.channelizer import plan_channelizer
+from ..dsp.detectors import diagonal_clipping_limit_s
+from .backend import Backend
+from .fast import FastFrontEnd
+
+__all__ = ["Receiver", "PATHS", "channel_rate"]
+
+PATHS = ("fast", "exact")
+
+
+def channel_rate(audio_rate_hz: float, fs: float) -> float:
+    """The rate the detector and AGC run at: a multiple of the audio rate of at least 88 kHz.
+
+    Examples
+    --------
+    >>> channel_rate(48000.0, 2.4e6), channel_rate(44100.0, 2.4e6)
+    (96000.0, 88200.0)
+    """
+    r = math.ceil(88000.0 / audio_rate_hz)
+    return float(min(audio_rate_hz * r, fs))
+
+
+class Receiver:
+    """Stateful receiver: capture samples in, audio out.
+
+    Parameters
+    ----------
+    design : ChainDesign
+    info : CaptureInfo or similar
+        Needs ``fs``, ``kind`` ("iq"|"real"), ``center_hz`` and ``band_hz``.
+    tune_hz : float
+        The station's carrier frequency.
+    path : {"fast", "exact"}
+    agc_hold_gain_db : float, optional
+        Hold the AGC stage gain at this value.
+    first_sample : int
+        Absolute index of the first sample fed (phase continuity of the LO
+        and channel oscillators across excerpts).
+    if_rate_hz : float, optional
+        Exact path only: the IF sample rate (default: chosen to hold every
+        mixing product of the captured band).
+
+    Raises
+    ------
+    ParameterError
+        Tuning outside the capture, unknown path, unusable IF rate.
+    """
+
+    def __init__(self, design, info, tune_hz: float, path: str = "fast", agc_hold_gain_db=None,
+                 first_sample: int = 0, if_rate_hz=None):
+        if path not in PATHS:
+            raise ParameterError(f"--path {path!r}: choose one of {', '.join(PATHS)}")
+        self.design = design
+        self.info = info
+        self.tune_hz = float(tune_hz)
+        self.path = path
+        self.warnings: list = []
+        lo, hi = info.band_hz
+        name = getattr(info, "path", "capture")
+        if not lo < tune_hz < hi:
+            raise ParameterError(
+                f"--tune {format_frequency(tune_hz)}: outside the capture's band "
+                f"{format_frequency(lo)} to {format_frequency(hi)} ({name})"
+            )
+        fs_ch = channel_rate(design.audio.rate_hz, info.fs)
+        self.plan = plan_channelizer(info.fs, fs_ch)
+        self.fs_ch = self.plan.fs_ch
+        edge = design.audio.lowpass_hz
+        if tune_hz - edge < lo or tune_hz + edge > hi:
+            self.warnings.append(
+                f"the wanted channel reaches past the capture's band edge ({format_frequency(lo)} to {format_frequency(hi)})"
+            )
+        if path == "fast":
+            self.front = FastFrontEnd(design, self.plan, info.kind, info.center_hz, (lo, hi), tune_hz, first_sample)
+            if not self.front.has_image:
+                self.warnings.append(
+                    f"image channel {format_frequency(design.image_hz(tune_hz))} is outside the capture: "
+                    "its signals are absent, so image rejection is not exercised"
+                )
+            elif self.front.image_partly:
+                self.warnings.append(
+                    f"image channel {format_frequency(design.image_hz(tune_hz))} lies partly outside the capture"
+                )
+        else:
+            from .exact import ExactFrontEnd
+
+            self.front = ExactFrontEnd(design, self.plan, info, tune_hz, first_sample, if_rate_hz)
+            self.warnings.extend(self.front.warnings)
+        self.backend = Backend(design, self.fs_ch, agc_hold_gain_db)
+        self.audio_fs = float(design.audio.rate_hz)
+        self._ref = float(abs(design.rf_response(tune_hz, tune_hz)[0]))
+        self._n_in = 0
+        self._n_out = 0
+        self._drop = self.backend.resampler.delay_out
+        self._flushed = False
+
+    @property
+    def delay_s(self) -> float:
+        """Group delay of the analog chain (IF stages at the carrier, audio filters at 1 kHz), s."""
+        f = self.tune_hz + np.array([-50.0, 50.0])
+        ph = np.unwrap(np.angle(self.design.rf_response(f, self.tune_hz)))
+        tau_if = abs(ph[1] - ph[0]) / (2 * math.pi * 100.0)
+        from scipy import signal
+
+        sos = self.backend.sos_audio
+        _, h1 = signal.sosfreqz(sos, worN=[990.0, 1010.0], fs=self.fs_ch)
+        ph_a = np.unwrap(np.angle(h1))
+        tau_audio = -(ph_a[1] - ph_a[0]) / (2 * math.pi * 20.0)
+        return float(tau_if + tau_audio)
+
+    def _out(self, a: np.ndarray) -> np.ndarray:
+        if self._drop:
+            k = min(self._drop, len(a))
+            a = a[k:]
+            self._drop -= k
+        self._n_out += len(a)
+        return a
+
+    def process(self, block: np.ndarray) -> np.ndarray:
+        """Feed capture samples; return the audio they complete."""
+        if self._flushed:
+            raise RuntimeError("Receiver already flushed")
+        self._n_in += len(block)
+        u = self.front.process(block)
+        return self._out(self.backend.process(u))
+
+    def flush(self) -> np.ndarray:
+        """End of input: return the remaining audio, so that the total is duration × audio rate."""
+        self._flushed = True
+        target = int(math.floor(self._n_in * self.audio_fs / self.info.fs + 1e-9))
+        parts = [self._out(self.backend.process(self.front.flush())), self._out(self.backend.flush())]
+        tail = np.concatenate(parts)
+        have_before = self._n_out - len(tail)
+        need = max(0, target - have_before)
+        if len(tail) < need:
+            tail = np.concatenate([tail, np.zeros(need - len(tail))])
+        tail = tail[:need]
+        self._n_out = have_before + len(tail)
+        self._finish_warnings()
+        return tail
+
+    def _finish_warnings(self) -> None:
+        det = self.design.detector
+        depths = self.backend.meter.depths
+        if det.kind == "diode" and depths:
+            m = float(np.percentile(depths, 90)) if len(depths) > 1 else float(depths[0])
+            fm = self.design.audio.lowpass_hz
+            limit = diagonal_clipping_limit_s(min(m, 0.999), fm)
+            if det.rc_us * 1e-6 > limit:
+                self.warnings.append(
+                    f"diode RC {det.rc_us:g} us is slower than the diagonal-clipping limit "
+                    f"{limit * 1e6:.1f} us for depth {m:.2f} at {fm:g} Hz: expect clipping on deep modulation"
+                )
+
+    def carrier_levels_dbfs(self, settle_s: float = 0.05) -> np.ndarray:
+        """Carrier level referred to the antenna, per 10 ms window after ``settle_s``.
+
+        The IF output's mean envelope divided by the chain's response at the
+        tuned frequency: an on-tune carrier of A dBFS reads A.
+        """
+        means = np.asarray(self.backend.meter.means, dtype=float)
+        skip = int(round(settle_s / 0.01))
+        if len(means) > skip:
+            means = means[skip:]
+        return db20(np.maximum(means, 1e-15) / self._ref)
+
+    def stats(self, settle_s: float = 0.05) -> dict:
+        """Carrier level (antenna-referred, dBFS) and AGC gain range."""
+        lv = self.carrier_levels_dbfs(settle_s)
+        agc = self.backend.agc
+        if len(lv):
+            c = {"mean": float(db20(np.mean(10 ** (lv / 20)))), "min": float(lv.min()), "max": float(lv.max())}
+        else:
+            c = {"mean": None, "min": None, "max": None}
+        g = {"min": agc.gain_min_db if math.isfinite(agc.gain_min_db) else None,
+             "max": agc.gain_max_db if math.isfinite(agc.gain_max_db) else None}
+        return {"carrier_dbfs": c, "agc_gain_db": g}
