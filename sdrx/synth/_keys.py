@@ -128,8 +128,9 @@ def get_choice(table, key, where, choices, default=_MISSING):
     if not present:
         return value
     if value not in choices:
-        near = difflib.get_close_matches(str(value), list(choices), n=1, cutoff=0.5)
-        hint = f"; did you mean '{near[0]}'?" if near else ""
+        lower = {str(c).lower(): c for c in choices}
+        near = difflib.get_close_matches(str(value).lower(), list(lower), n=1, cutoff=0.5)
+        hint = f"; did you mean '{lower[near[0]]}'?" if near else ""
         raise ParameterError(f"{where}: {key} = {value!r} is not one of {', '.join(choices)}{hint}")
     return value
 

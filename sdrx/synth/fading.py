@@ -42,7 +42,7 @@ class FadingSpec:
         ``"rayleigh"``, ``"rician"`` or ``"two_path"``.
     rate_hz : float
         Fading rate: −3 dB half-width of the scattered component's spectrum
-        (Doppler spread), Hz.
+        (Doppler spread), Hz; 0 for a two-path model whose second path is steady.
     k_db : float or None
         Rician K factor (steady-to-scattered power), dB; for ``rician``, and
         for ``two_path`` whose second path is ``rician``.
@@ -92,8 +92,12 @@ def parse_fading(table, where: str) -> FadingSpec:
     model = get_choice(table, "model", where, FADING_MODELS)
     where = f"{where} ({model})"
     check_keys(table, _KEYS[model], where)
-    rate = get_frequency(table, "rate", where, positive=True)
-    if not 1e-3 <= rate <= 100.0:
+    steady_echo = model == "two_path" and table.get("second") == "steady"
+    if steady_echo and "rate" not in table:
+        rate = 0.0  # a steady second path: a fixed two-ray channel, nothing fades
+    else:
+        rate = get_frequency(table, "rate", where, positive=True)
+    if not (rate == 0.0 and steady_echo) and not 1e-3 <= rate <= 100.0:
         raise ParameterError(f"{where}: rate = {table['rate']!r} must be 0.001..100 Hz")
     if model == "rayleigh":
         return FadingSpec(model, rate)

@@ -43,7 +43,7 @@ except ModuleNotFoundError:  # Python 3.10
     import tomli as tomllib
 
 from ..errors import CaptureError, ParameterError
-from ..units import format_frequency
+from ..units import format_frequency, parse_seconds
 from ._keys import check_keys, get_choice, get_db, get_frequency, get_int, get_number, get_seconds
 from .fading import FadingSpec, parse_fading
 from .noise import ImpulseSpec, parse_impulse_noise
@@ -175,7 +175,7 @@ class Scenario:
         """The same scenario with another duration and/or seed (``--seconds``, ``--seed``)."""
         cap = self.capture
         if seconds is not None:
-            s = get_seconds({"seconds": seconds}, "seconds", "--seconds", allow_zero=False)
+            s = parse_seconds(seconds, "--seconds", allow_zero=False)
             _check_samples(s, cap.fs, "--seconds")
             cap = dataclasses.replace(cap, seconds=s)
         if seed is not None:
@@ -287,10 +287,13 @@ def _parse_capture(table, where) -> CaptureSpec:
     datatype = get_choice(table, "datatype", where, DATATYPES[kind], DATATYPES[kind][0])
     seconds = get_seconds(table, "seconds", where, allow_zero=False)
     _check_samples(seconds, fs, f"{where}: seconds")
-    noise = get_db(table, "noise_dbfs_per_hz", where, None) if "noise_dbfs_per_hz" in table else None
-    if isinstance(table.get("noise_dbfs_per_hz"), str):
-        noise = get_db({"n": table["noise_dbfs_per_hz"].replace("/Hz", "").replace("/hz", "")}, "n",
-                       f"{where}: noise_dbfs_per_hz")
+    noise = None
+    if "noise_dbfs_per_hz" in table:
+        value = table["noise_dbfs_per_hz"]
+        if isinstance(value, str):  # accept "-125", "-125 dBFS", "-125 dBFS/Hz"
+            value = value.strip()
+            value = value[:-3] if value.lower().endswith("/hz") else value
+        noise = get_db({"noise_dbfs_per_hz": value}, "noise_dbfs_per_hz", where)
     if noise is not None and noise > -30.0:
         raise ParameterError(f"{where}: noise_dbfs_per_hz = {table['noise_dbfs_per_hz']!r} is above -30 dBFS/Hz")
     seed = get_int(table, "seed", where, 0, lo=0)

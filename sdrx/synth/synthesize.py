@@ -302,6 +302,13 @@ def _over_full_scale(block) -> int:
     return int(np.count_nonzero(np.abs(block) > 1.0))
 
 
+def _capture_name(out: Path) -> str:
+    """File name a reader is pointed at: the .sigmf-meta of a SigMF pair, else the file itself."""
+    if out.name.lower().endswith(".sigmf-data"):
+        return out.name[: -len(".sigmf-data")] + ".sigmf-meta"
+    return out.name
+
+
 def truth_path_for(out) -> Path:
     """``<stem>.truth.json`` beside a capture (stem without .sigmf-meta/.sigmf-data/.wav)."""
     p = Path(out)
@@ -360,7 +367,7 @@ def _truth(scenario: Scenario, out: Path, state: dict, samples: int, over: int) 
         "title": scenario.title,
         "scenario": scenario.path.name if scenario.path is not None else None,
         "capture": {
-            "path": out.name,
+            "path": _capture_name(out),
             "kind": cap.kind,
             "rate_hz": cap.fs,
             "center_hz": cap.center_hz,
