@@ -67,6 +67,12 @@ class SpeechSource(ProgramSource):
     envelope. Rendering is per syllable, queued, so reads of any size give
     the same samples. State: random generator, formant and fricative filter
     state, glottal phase, queue of rendered samples.
+
+    Examples
+    --------
+    >>> x = SpeechSource(16000.0, 4500.0, 120.0, 4.0, seed=1).read(16000)
+    >>> x.shape, bool(np.all(np.isfinite(x)))
+    ((16000,), True)
     """
 
     def __init__(self, fs, bandwidth, pitch, syllable_rate, seed):
