@@ -333,6 +333,7 @@ class Comparison:
     problems: tuple = field(default_factory=tuple)
     spectrum_ref: Optional[tuple] = None      # (freqs, powers) for the plot
     spectrum_new: Optional[tuple] = None
+    spectrum_diff: Optional[tuple] = None     # of new - reference over the common length
 
     def to_json(self) -> dict:
         """JSON-ready figures (no spectra)."""
@@ -402,6 +403,7 @@ def compare_audio(ref_path, new_path, tolerance) -> Comparison:
         same_shape = fs_r == fs_n and fr.channels == fn.channels
         dtype = "float32" if tolerance.exact else "float64"
         acc_r, acc_n = SpectrumAccumulator(fs_r), SpectrumAccumulator(fs_n)
+        acc_d = SpectrumAccumulator(fs_r)
         s_rr = s_nn = s_ee = 0.0
         n_r = n_n = 0
         first_diff = None
@@ -420,6 +422,7 @@ def compare_audio(ref_path, new_path, tolerance) -> Comparison:
                 m = min(br.shape[0], bn.shape[0])
                 d = bn[:m].astype(float) - br[:m].astype(float)
                 s_ee += float(np.sum(d * d))
+                acc_d.add(d)
                 if first_diff is None:
                     neq = np.nonzero(np.any(bn[:m] != br[:m], axis=1))[0]
                     if neq.size:
@@ -471,6 +474,7 @@ def compare_audio(ref_path, new_path, tolerance) -> Comparison:
         band_centres_hz=centres, band_diff_db=diffs, first_difference=first_diff,
         passed=not problems, problems=tuple(problems),
         spectrum_ref=acc_r.result(), spectrum_new=acc_n.result(),
+        spectrum_diff=acc_d.result() if same_shape else None,
     )
 
 
@@ -588,7 +592,7 @@ def write_difference(ref_path, new_path, out_path) -> Path:
 
 
 def plot_spectra(comparison: Comparison, out_path, title: str) -> Path:
-    """A small PNG of the reference and new spectra and the octave-band changes.
+    """A small PNG of the reference, new and difference spectra and the octave-band changes.
 
     Parameters
     ----------
@@ -611,10 +615,12 @@ def plot_spectra(comparison: Comparison, out_path, title: str) -> Path:
     out = Path(out_path)
     fig = Figure(figsize=(6.4, 3.6), dpi=80)
     ax = fig.add_subplot(1, 1, 1)
-    for (f, p), label, style in ((comparison.spectrum_ref, "reference", "-"),
-                                 (comparison.spectrum_new, "new", "--")):
-        if f is None:
+    curves = [(comparison.spectrum_ref, "reference", "-"), (comparison.spectrum_new, "new", "--"),
+              (comparison.spectrum_diff, "new - reference", ":")]
+    for spectrum, label, style in curves:
+        if spectrum is None:
             continue
+        f, p = spectrum
         sel = f > 0
         with np.errstate(divide="ignore"):
             level = np.maximum(10.0 * np.log10(np.maximum(p[sel] * 2.0, 1e-30)), -160.0)
