@@ -410,32 +410,32 @@ def measure_levels_dbfs(design, tune_hz, freqs_hz, spacing_hz=10e3, *, path="fas
     Returns
     -------
     ndarray
-        Mean carrier level at the detector over the measurement window, dBFS.
+        Mean carrier level at the detector over the measurement window, dBFS
+        (the receiver refers it to the antenna: the IF envelope over the
+        chain's designed response at the tune, so a carrier on tune of A dBFS
+        reads A; relative levels are the selectivity).
 
     Notes
     -----
-    Single-signal method with the AGC held (ITU-R SM.332). The level is the
-    mean of ``rx.stats()["carrier_dbfs"]`` of a receiver that has only seen
-    the measurement window's samples after the settling run (the settling
-    statistics are read first and removed, see the code).
+    Single-signal method with the AGC held (ITU-R SM.332): one receiver per
+    carrier, fed ``settle_s + measure_s`` of the carrier; the level is
+    ``rx.stats(settle_s)["carrier_dbfs"]["mean"]``, the mean over the 10 ms
+    windows after ``settle_s``.
     """
     from ..run import Receiver
 
     info = tone_capture(design, tune_hz, spacing_hz)
     fs = info.fs
-    n_settle = int(round(settle_s * fs))
-    n_meas = int(round(measure_s * fs))
-    t_settle = np.arange(n_settle) / fs
-    t_meas = (n_settle + np.arange(n_meas)) / fs
+    n = int(round((settle_s + measure_s) * fs))
+    t = np.arange(n) / fs
     freqs = np.atleast_1d(np.asarray(freqs_hz, dtype=float))
     out = np.empty(freqs.size)
     for i, f in enumerate(freqs):
-        w = 2 * math.pi * (f - info.center_hz)
         rx = Receiver(design, info, tune_hz, path=path, agc_hold_gain_db=hold_gain_db)
-        rx.process((amplitude * np.exp(1j * w * t_settle)).astype(np.complex64))
-        rx.reset_stats()
-        rx.process((amplitude * np.exp(1j * w * t_meas)).astype(np.complex64))
-        out[i] = rx.stats()["carrier_dbfs"]["mean"]
+        x = amplitude * np.exp(2j * math.pi * (f - info.center_hz) * t)
+        rx.process(x.astype(np.complex64))
+        level = rx.stats(settle_s=settle_s)["carrier_dbfs"]["mean"]
+        out[i] = -math.inf if level is None else level
         if progress is not None:
             progress(i + 1, freqs.size)
     return out
@@ -448,19 +448,20 @@ def measured_offsets(design, tune_hz, spacing_hz, designed, points=31):
     adj = [-2 * spacing_hz, -spacing_hz, spacing_hz, 2 * spacing_hz]
     im = design.image_hz(tune_hz) - tune_hz
     around = im + spacing_hz * np.array([-2.0, -1.0, -0.5, 0.5, 1.0, 2.0])
-    offs = np.concatenate([[0.0], grid, edges, adj, [im], around])
-    return np.unique(np.round(offs, 6))
+    offs = np.unique(np.concatenate([[0.0], grid, edges, adj, [im], around]))
+    keep = np.concatenate([[True], np.diff(offs) > 1e-3])  # drop near-duplicates
+    return offs[keep]
 
 
 def measured_figures(design, tune_hz, spacing_hz, designed, *, path="fast", points=31, progress=None,
                      **measure_kw):
     """Measured selectivity figures by running test carriers through the chain.
 
-    Band edges: the level is measured at each designed edge and the edge is
-    moved by one Newton step along the designed slope there, then measured
-    again to check (the measured edge is where the measured response crosses
-    the level, to the accuracy of that step). Rejections are measured at the
-    exact offsets. The response list holds the measured points.
+    Band edges: a test carrier sits on each designed edge; the measured
+    edge is that offset moved by one Newton step along the designed slope,
+    ``e + (-x - measured(e)) / slope(e)`` (exact when the measured and
+    designed curves differ by a constant near the edge). Rejections are
+    measured at their exact offsets. ``response`` holds every measured point.
 
     Returns
     -------
@@ -468,23 +469,19 @@ def measured_figures(design, tune_hz, spacing_hz, designed, *, path="fast", poin
     """
     tune_hz, spacing_hz = validate_tuning(design, tune_hz, spacing_hz)
     offs = measured_offsets(design, tune_hz, spacing_hz, designed, points)
-    total = offs.size
-    done = [0]
+    lv = measure_levels_dbfs(design, tune_hz, tune_hz + offs, spacing_hz, path=path, progress=progress,
+                             **measure_kw)
+    i0 = int(np.argmin(np.abs(offs)))
+    rel = lv - lv[i0]
 
-    def prog(k, n):
-        if progress is not None:
-            progress(done[0] + k, total + 2 * len(BANDWIDTH_LEVELS_DB))
+    def at(o):
+        i = int(np.argmin(np.abs(offs - o)))
+        return float(rel[i]) if abs(offs[i] - o) <= 1e-3 else float("nan")
 
-    lv = measure_levels_dbfs(design, tune_hz, tune_hz + offs, spacing_hz, path=path, progress=prog, **measure_kw)
-    done[0] = total
-    ref = lv[offs == 0.0][0]
-    rel = lv - ref
-    table = dict(zip(offs.tolist(), rel.tolist()))
     dres = lambda o: relative_response_db(design, tune_hz, tune_hz + np.asarray(o, dtype=float))
 
     # Newton step on each designed edge
     edges, widths = {}, {}
-    new_pts = []
     for k, (lo, hi) in designed.edges_hz.items():
         lvl = float(k)
         pair = []
@@ -494,13 +491,12 @@ def measured_figures(design, tune_hz, spacing_hz, designed, *, path="fast", poin
                 continue
             h = max(abs(e) * 1e-4, 1.0)
             slope = float((dres([e + h])[0] - dres([e - h])[0]) / (2 * h))
-            m = table[round(e, 6)] if round(e, 6) in table else float("nan")
+            m = at(e)
             pair.append(e + (-lvl - m) / slope if slope != 0 and math.isfinite(m) else None)
         edges[k] = tuple(pair)
         widths[k] = None if None in pair else pair[1] - pair[0]
-        new_pts += [p for p in pair if p is not None]
     sf = widths["60"] / widths["6"] if widths.get("60") and widths.get("6") else None
-    adj = {_key(o): -table[round(o, 6)] for o in (-spacing_hz, spacing_hz, -2 * spacing_hz, 2 * spacing_hz)}
-    im = round(design.image_hz(tune_hz) - tune_hz, 6)
+    adj = {_key(o): -at(o) for o in (-spacing_hz, spacing_hz, -2 * spacing_hz, 2 * spacing_hz)}
+    im = -at(design.image_hz(tune_hz) - tune_hz)
     resp = tuple((float(o), float(v)) for o, v in zip(offs, rel))
-    return Figures(f"measured ({path} path)", widths, edges, sf, adj, -table[im], resp)
+    return Figures(f"measured ({path} path)", widths, edges, sf, adj, im, resp)

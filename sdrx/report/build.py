@@ -42,15 +42,15 @@ class Report:
 
 
 def _hz(v):
-    return None if v is None or not math.isfinite(v) else round(float(v), 1)
+    return None if v is None or not math.isfinite(v) else round(float(v), 1) + 0.0
 
 
 def _db(v):
-    return None if v is None or not math.isfinite(v) else round(float(v), 3)
+    return None if v is None or not math.isfinite(v) else round(float(v), 3) + 0.0
 
 
 def _q(v):
-    return None if v is None or not math.isfinite(v) else round(float(v), 2)
+    return None if v is None or not math.isfinite(v) else round(float(v), 2) + 0.0
 
 
 def _figures_json(fig, response_offsets_fmt=True) -> dict:

@@ -1,0 +1,179 @@
+"""Tests of the report: JSON keys, HTML self-contained and equal to the JSON, byte-identical outputs."""
+
+import json
+import re
+from html.parser import HTMLParser
+
+import numpy as np
+import pytest
+
+from sdrx.capture import open_writer
+from sdrx.report.build import build_report, write_report
+from sdrx.report.html import lookup
+
+TUNE = 1000e3
+
+
+@pytest.fixture(scope="module")
+def report():
+    # measured with few points to keep the test quick; the accuracy itself is tested in test_report_measured.py
+    return build_report("medium", TUNE, spacing_hz=10e3, points=7)
+
+
+def test_json_keys(report):
+    d = report.data
+    for key in ("chain", "tune_hz", "if_hz", "lo_hz", "image_hz", "spacing_hz", "designed", "measured"):
+        assert key in d
+    assert d["lo_hz"] == 1455e3 and d["image_hz"] == 1910e3  # common practice: LO f + IF, image f + 2 IF
+    for part in ("designed", "measured"):
+        p = d[part]
+        assert set(p["bandwidth_hz"]) == {"3", "6", "40", "60"}
+        assert set(p["adjacent_rejection_db"]) == {"-10000", "10000", "-20000", "20000"}
+        for k in ("shape_factor", "image_rejection_db", "response"):
+            assert k in p
+        assert all(len(row) == 2 for row in p["response"])
+    q = d["designed"]["q"]
+    assert isinstance(q["stages"], list) and len(q["stages"]) == 3  # preselector + two IF stages
+    for k in ("equivalent_rf", "equivalent_if", "shortcut_rf", "shortcut_if"):
+        assert q[k] > 0
+    json.dumps(d, allow_nan=False)
+
+
+class _Collect(HTMLParser):
+    def __init__(self):
+        super().__init__()
+        self.keyed = []      # (data-key, text)
+        self.numeric_td = []  # text of every numeric cell
+        self.refs = []       # src/href values
+        self.imgs = []
+        self._key = None
+        self._td = False
+        self._buf = ""
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        for name in ("src", "href"):
+            if name in a:
+                self.refs.append(a[name])
+        if tag == "img":
+            self.imgs.append(a)
+        if tag in ("td", "span"):
+            self._key = a.get("data-key")
+            self._td = True
+            self._buf = ""
+
+    def handle_data(self, data):
+        if self._td:
+            self._buf += data
+
+    def handle_endtag(self, tag):
+        if tag in ("td", "span") and self._td:
+            text = self._buf.strip()
+            if re.fullmatch(r"[-+]?\d+(\.\d*)?([eE][-+]?\d+)?", text):
+                self.numeric_td.append(text)
+            if self._key is not None:
+                self.keyed.append((self._key, text))
+            self._td = False
+            self._key = None
+
+
+def _check_html_against_json(folder):
+    data = json.loads((folder / "report.json").read_text())
+    page = (folder / "report.html").read_text()
+    p = _Collect()
+    p.feed(page)
+    # every figure is embedded: data: URIs only, nothing external
+    assert p.refs and all(r.startswith("data:image/png;base64,") for r in p.refs)
+    assert "http://" not in page and "https://" not in page
+    assert sorted(i["data-name"] for i in p.imgs) == sorted(data["figures"])
+    for name in data["figures"]:
+        assert (folder / name).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    # every number in the tables is tagged and equals the JSON value
+    assert len(p.numeric_td) == sum(1 for k, t in p.keyed if t != "n/a")
+    for key, text in p.keyed:
+        v = lookup(data, key)
+        if text == "n/a":
+            assert v is None, key
+        else:
+            assert float(text) == v, key
+    return data, p
+
+
+def test_html_embeds_figures_and_numbers_equal_json(report, tmp_path):
+    write_report(report, tmp_path / "rep")
+    data, p = _check_html_against_json(tmp_path / "rep")
+    keys = {k for k, _ in p.keyed}
+    for k in ("designed.bandwidth_hz.60", "measured.bandwidth_hz.6", "measured.difference.image_rejection_db",
+              "designed.q.equivalent_if", "designed.q.stages.2.loaded_q"):
+        assert k in keys
+
+
+def test_user_text_is_escaped(tmp_path):
+    rep = build_report({"name": "<b>&x</b>", "preselector": {"kind": "none"}}, TUNE, measure=False)
+    write_report(rep, tmp_path / "r")
+    page = (tmp_path / "r" / "report.html").read_text()
+    assert "<b>&x</b>" not in page and "&lt;b&gt;&amp;x&lt;/b&gt;" in page
+
+
+def test_byte_identical_outputs(tmp_path):
+    a = build_report("narrow", 1130e3, measure=False)
+    b = build_report("narrow", 1130e3, measure=False)
+    write_report(a, tmp_path / "a")
+    write_report(b, tmp_path / "b")
+    for f in sorted((tmp_path / "a").iterdir()):
+        assert f.read_bytes() == (tmp_path / "b" / f.name).read_bytes(), f.name
+    png = (tmp_path / "a" / "selectivity.png").read_bytes()
+    assert b"Software" not in png and b"matplotlib" not in png
+
+
+def test_existing_output_needs_force(report, tmp_path):
+    from sdrx.errors import OutputError
+
+    write_report(report, tmp_path / "r")
+    before = (tmp_path / "r" / "report.json").read_bytes()
+    with pytest.raises(OutputError, match="exists already; pass --force"):
+        write_report(report, tmp_path / "r")
+    write_report(report, tmp_path / "r", force=True)
+    assert (tmp_path / "r" / "report.json").read_bytes() == before
+
+
+@pytest.fixture
+def capture(tmp_path):
+    """An I/Q capture made in code: carriers at the tune, +10 kHz, -20 kHz and +40 kHz."""
+    fs, center, seconds = 250e3, 1000e3, 0.3
+    rng = np.random.default_rng(7)
+    t = np.arange(int(fs * seconds)) / fs
+    x = np.zeros(t.size, complex)
+    for f, a in ((1000e3, 0.3), (1010e3, 0.1), (980e3, 0.05), (1040e3, 0.2)):
+        x += a * np.exp(2j * np.pi * (f - center) * t + 1j * rng.uniform(0, 2 * np.pi))
+    x += 1e-4 * (rng.standard_normal(t.size) + 1j * rng.standard_normal(t.size))
+    path = tmp_path / "cap.sigmf-meta"
+    with open_writer(path, fs=fs, kind="iq", datatype="cf32_le", center_hz=center) as w:
+        w.write(x.astype(np.complex64))
+    return path, {1000e3: 0.3, 1010e3: 0.1, 980e3: 0.05, 1040e3: 0.2}
+
+
+def test_capture_carriers_and_spectrum(capture, tmp_path):
+    path, truth = capture
+    rep = build_report("medium", TUNE, capture=path, measure=False)
+    cars = {c["freq_hz"]: c for c in rep.data["carriers"]}
+    assert set(truth) <= set(cars)
+    for f, a in truth.items():
+        c = cars[f]
+        # level convention (contracts): 20 log10 of the carrier amplitude; survey's accuracy is its own test
+        assert c["antenna_dbfs"] == pytest.approx(20 * np.log10(a), abs=0.5)
+        assert c["offset_hz"] == f - TUNE
+        assert c["detector_dbfs"] == pytest.approx(c["antenna_dbfs"] + c["selectivity_db"], abs=2e-3)
+    assert cars[1000e3]["tuned"] and not cars[1000e3]["within_two_channels"]
+    assert cars[1010e3]["within_two_channels"] and cars[980e3]["within_two_channels"]
+    assert not cars[1040e3]["within_two_channels"] and not cars[1040e3]["image"]
+    assert "spectrum.png" in rep.figures
+    write_report(rep, tmp_path / "r")
+    _check_html_against_json(tmp_path / "r")
+
+
+def test_tune_outside_capture(capture):
+    from sdrx.errors import ParameterError
+
+    with pytest.raises(ParameterError, match="outside the band of capture"):
+        build_report("medium", 1500e3, capture=capture[0], measure=False)
