@@ -66,7 +66,7 @@ def _wait(page, cond, timeout_s=5.0, what="condition"):
     raise AssertionError(f"timed out waiting for {what}: {_state(page)}")
 
 
-def run_page_checks(page, folder, key):
+def run_page_checks(page, folder, key, second_label):
     errors = []
     page.on("pageerror", lambda e: errors.append(str(e)))
     page.goto((folder / "index.html").as_uri())
@@ -85,7 +85,7 @@ def run_page_checks(page, folder, key):
     assert st[1]["t"] > 0.6
     t_switch = st[1]["t"]
     st = _wait(page, lambda st: st[1]["t"] > t_switch + 0.2, what="B advancing")
-    assert page.inner_text("#now") == "Now playing: narrow"
+    assert page.inner_text("#now") == f"Now playing: {second_label}"
 
     # blind trial 1: listen to X, it plays from the same position, answer right; trial 2 answer wrong
     page.click("#play-0-X")
@@ -110,18 +110,46 @@ def run_page_checks(page, folder, key):
     assert errors == []
 
 
-def test_page_in_chromium(tmp_path):
+def _real_run(tmp_path):
+    """The whole `sdrx compare` on a synthesized 3 s capture, two shipped presets."""
+    from sdrx.cli import main
+    from sdrx.synth import parse_scenario, synthesize
+
+    sc = parse_scenario({
+        "title": "browser test (invented)",
+        "capture": {"kind": "iq", "rate": "240k", "center": "1M", "datatype": "ci16_le", "seconds": 3.0,
+                    "noise_dbfs_per_hz": -120, "seed": 8},
+        "station": [
+            {"name": "Alpha", "frequency": "1M", "level_dbfs": -20, "depth": 0.8, "program": {"kind": "speech"}},
+            {"name": "Beta", "frequency": "1.01M", "level_dbfs": -32, "depth": 0.8, "program": {"kind": "music"}},
+        ]})
+    cap = tmp_path / "band.sigmf-meta"
+    synthesize(sc, cap)
+    out = tmp_path / "real"
+    try:
+        rc = main(["compare", str(cap), "--tune", "1M", "wide", "medium", "-o", str(out), "--blind", "3",
+                   "--seed", "5", "--quiet"])
+    except SystemExit as exc:
+        rc = exc.code
+    assert rc == 0
+    return out
+
+
+@pytest.mark.parametrize("source", ["synthesized-wavs", "sdrx-compare-run"])
+def test_page_in_chromium(tmp_path, source):
     from playwright.sync_api import sync_playwright
 
-    folder = _page_folder(tmp_path)
+    folder = _page_folder(tmp_path) if source == "synthesized-wavs" else _real_run(tmp_path)
     key = [t["x_is"] for t in json.loads((folder / "blind-key.json").read_text())["trials"]]
+    second = json.loads((folder / "compare.json").read_text())["specs"][1]["label"]
     ARTIFACTS.mkdir(exist_ok=True)
+    shot = ARTIFACTS / f"compare-page-{source}.png"
     with sync_playwright() as p:
         browser = _launch(p)
         try:
             page = browser.new_page(viewport={"width": 1200, "height": 1400})
-            run_page_checks(page, folder, key)
-            page.screenshot(path=str(ARTIFACTS / "compare-page.png"), full_page=True)
+            run_page_checks(page, folder, key, second)
+            page.screenshot(path=str(shot), full_page=True)
         finally:
             browser.close()
-    assert (ARTIFACTS / "compare-page.png").stat().st_size > 10000
+    assert shot.stat().st_size > 10000

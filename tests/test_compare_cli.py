@@ -106,3 +106,74 @@ def test_bad_blind_count(capture, tmp_path, capsys):
     out = tmp_path / "cmp"
     _bad(capsys, ["compare", str(capture), "--tune", "1M", "wide", "narrow", "-o", str(out), "--blind", "-3"],
          "--blind", out)
+
+
+def _xcorr_peak_lag(x, ref):
+    from scipy import signal
+
+    r = signal.correlate(x - x.mean(), ref - ref.mean(), mode="full", method="fft")
+    return int(signal.correlation_lags(x.size, ref.size, mode="full")[np.argmax(r)])
+
+
+def test_whole_run_on_two_presets(capture, tmp_path, capsys):
+    import pyloudnorm
+    import soundfile as sf
+    from scipy.stats import binom
+
+    out = tmp_path / "cmp"
+    args = ["compare", str(capture), "--tune", "1M", "wide", "narrow", "-o", str(out), "--blind", "5",
+            "--seed", "11", "--quiet"]
+    rc, stdout, err = run(args, capsys)
+    assert rc == 0, err
+    assert stdout == ""
+    names = sorted(p.name for p in out.iterdir())
+    assert names == sorted([".sdrx-compare", "blind-key.json", "compare.json", "index.html", "narrow.wav", "wide.wav"])
+    res = json.loads((out / "compare.json").read_text())
+    assert [s["label"] for s in res["specs"]] == ["wide", "narrow"]
+    assert res["key_file"] == "blind-key.json"
+    xs = []
+    meter = None
+    for s in res["specs"]:
+        x, fs = sf.read(out / s["wav"], dtype="float64")
+        meter = meter or pyloudnorm.Meter(fs)
+        # source: ITU-R BS.1770 via pyloudnorm, measured on the written file
+        assert meter.integrated_loudness(x) == pytest.approx(res["loudness"]["target_lufs"], abs=0.1)
+        assert np.max(np.abs(x)) <= 10 ** (-1 / 20)
+        xs.append(x)
+    # alignment: cross-correlation peak at zero lag within one sample
+    assert abs(_xcorr_peak_lag(xs[1], xs[0])) <= 1
+    # measured lag agrees with the designed group-delay difference to a few samples (48 kHz)
+    narrow = res["specs"][1]
+    assert narrow["delay_ms"] == pytest.approx(narrow["designed_delay_ms"], abs=3 / 48)
+    # the 1 kHz tone station (truth sidecar): the narrow chain keeps the neighbour's noise out
+    assert narrow["sinad_db"] > res["specs"][0]["sinad_db"] + 10
+    assert narrow["adjacent_rejection_db"]["worst"] > res["specs"][0]["adjacent_rejection_db"]["worst"]
+    page = (out / "index.html").read_text()
+    key = json.loads((out / "blind-key.json").read_text())
+    assert [t["trial"] for t in key["trials"]] == [1, 2, 3, 4, 5]
+    for t in key["trials"]:
+        assert f"X was {t['x_is']} ({t['x']})" not in page  # the reveal's wording is not in the page source
+    data = json.loads(page.split('id="sdrx-data">')[1].split("</script>")[0])
+    assert data["blind"]["chance"][4] == pytest.approx(binom.sf(3, 5, 0.5))  # source: binomial tail via scipy.stats
+
+    # a rerun into the same folder needs --force, then gives the same bytes
+    before = {p.name: p.read_bytes() for p in out.iterdir()}
+    rc, _, err = run(args, capsys)
+    assert rc == 2 and "holds an earlier comparison; pass --force" in err
+    rc, _, err = run(args + ["--force"], capsys)
+    assert rc == 0, err
+    assert {p.name: p.read_bytes() for p in out.iterdir()} == before
+
+
+def test_spec_file_with_hostile_name_is_escaped(capture, tmp_path, capsys):
+    spec = tmp_path / "odd.toml"
+    spec.write_text('name = "<script>alert(1)</script>"\n')
+    out = tmp_path / "cmp"
+    rc, _, err = run(["compare", str(capture), "--tune", "1M", "medium", f"{spec}@<b>bold</b>", "-o", str(out),
+                      "--quiet", "--duration", "1"], capsys)
+    assert rc == 0, err
+    page = (out / "index.html").read_text()
+    assert "<script>alert(1)</script>" not in page
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page
+    assert "<b>bold</b>" not in page
+    assert (out / "b-bold-b.wav").is_file()

@@ -50,6 +50,8 @@ DEFAULT_SECONDS = 30.0
 MIN_SECONDS = 1.0
 #: peak limit of the loudness-matched outputs
 PEAK_LIMIT_DBFS = -1.0
+#: receiver start-up (AGC pull-in from its starting gain, filter transients) left out of every output
+SETTLE_S = 0.2
 #: largest delay difference between outputs that alignment searches
 MAX_LAG_S = 0.05
 KEY_FILE = "blind-key.json"
@@ -403,11 +405,15 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
     # ---- receive every spec into a temporary folder --------------------------------------
     import soundfile as sf
 
-    from ..run import receive
+    from ..run import Receiver, receive
 
-    n_capture = int(round(duration * info.fs))
+    # the receiver starts with the AGC at its starting gain: run it from up to SETTLE_S before the
+    # excerpt and drop SETTLE_S of audio (with --start 0 the first SETTLE_S of the excerpt is not heard)
+    preroll = min(start, SETTLE_S)
+    rx_start, rx_duration = start - preroll, duration + preroll
+    n_capture = int(round(rx_duration * info.fs))
     total = n_capture * len(choices)
-    raw, rates, summaries = [], [], []
+    raw, rates, summaries, delays = [], [], [], []
     with tempfile.TemporaryDirectory(prefix="sdrx-compare-") as tmpdir:
         for i, (c, d) in enumerate(zip(choices, designs)):
             def sub(done, _total, _i=i):
@@ -415,24 +421,29 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
                     progress(min(total, _i * n_capture + int(done)), total)
 
             wav = Path(tmpdir) / f"{i}.wav"
-            summary = receive(capture, tune, d, wav, path=path, start_s=start, duration_s=duration,
+            summary = receive(capture, tune, d, wav, path=path, start_s=rx_start, duration_s=rx_duration,
                               float_output=True, force=True, progress=sub if progress else None,
                               datatype=datatype, fs=fs, center_hz=center_hz)
             audio, afs = sf.read(str(wav), dtype="float64", always_2d=False)
             if audio.ndim != 1:
                 audio = audio[:, 0]
-            raw.append(audio)
+            raw.append(audio[int(round(SETTLE_S * afs)):])
             rates.append(float(afs))
             summaries.append(summary)
+            delays.append(Receiver(d, info, tune, path=path).delay_s)
     return write_comparison(
         out, choices, designs, raw, rates, plan=plan, tune_hz=tune, spacing_hz=spacing,
         summaries=summaries, tone_hz=_truth_tone(Path(info.path), tune), old_files=old_files,
+        designed_delays_s=delays,
         header={
             "capture": info.to_json(),
-            "excerpt": {"start_s": start, "duration_s": duration},
+            "excerpt": {"start_s": start, "duration_s": duration, "settle_s": SETTLE_S,
+                        "heard_from_s": start + SETTLE_S - preroll},
             "path": path,
-            "subtitle": (f"Capture {info.path} ({info.kind}, {format_frequency(info.fs)} rate); excerpt from "
-                         f"{start:g} s, {duration:g} s; {path} path; channel spacing {format_frequency(spacing)}."),
+            "subtitle": (f"Capture {info.path} ({info.kind}, {format_frequency(info.fs)} rate); excerpt "
+                         f"{start:g} s + {duration:g} s, heard from {start + SETTLE_S - preroll:g} s after "
+                         f"{SETTLE_S:g} s of receiver settling; {path} path; channel spacing "
+                         f"{format_frequency(spacing)}."),
             "capture_name": Path(info.path).name,
         },
         progress_done=(lambda: progress(total, total)) if progress is not None else None,
@@ -441,7 +452,7 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
 
 def write_comparison(out_dir, choices, designs, raw, rates, *, plan, tune_hz: float, spacing_hz: float,
                      header: dict, summaries=None, tone_hz=None, old_files=frozenset(),
-                     progress_done=None) -> dict:
+                     designed_delays_s=None, progress_done=None) -> dict:
     """Align, loudness-match and write a comparison of outputs that are already computed.
 
     The second half of :func:`compare`, separate so that it can be driven with
@@ -472,6 +483,11 @@ def write_comparison(out_dir, choices, designs, raw, rates, *, plan, tune_hz: fl
         The station's single test tone (truth sidecar), for SINAD.
     old_files : set of str
         Files an earlier comparison in the folder listed (from :func:`check_out_dir`).
+    designed_delays_s : list of float, optional
+        Each chain's designed group delay (``Receiver.delay_s``), kept beside the
+        measured lag as a cross-check.
+    progress_done : callable, optional
+        Called once when everything is written.
 
     Returns
     -------
@@ -521,11 +537,17 @@ def write_comparison(out_dir, choices, designs, raw, rates, *, plan, tune_hz: fl
             "gain_db": match.gain_db[i],
             "peak_dbfs_after": match.peak_dbfs[i] + match.gain_db[i],
             "delay_ms": alignment.lags[i] / audio_fs * 1e3,
+            "designed_delay_ms": (None if designed_delays_s is None
+                                  else (designed_delays_s[i] - designed_delays_s[0]) * 1e3),
             **figs,
-            "audio_bandwidth_hz": audio_bandwidth_hz(cut[i], audio_fs),
+            # on a single test tone the long-term spectrum shows the tone, not the chain: not reported
+            "audio_bandwidth_hz": None if tone_hz else audio_bandwidth_hz(cut[i], audio_fs),
             "sinad_db": _finite_or_none(sinad_db(cut[i], audio_fs, tone_hz)) if tone_hz else None,
-            "receive": {k: s.get(k) for k in ("lo_hz", "if_hz", "image_hz", "carrier_dbfs", "agc_gain_db",
-                                              "clipped_samples", "warnings") if k in s},
+            # compare takes the receiver's float output and re-levels it, so its clipping count
+            # (of the 16-bit scale, mostly in the start-up left out) does not apply
+            "receive": {k: s.get(k) for k in ("lo_hz", "if_hz", "image_hz", "carrier_dbfs", "agc_gain_db")
+                        if k in s} | {"warnings": [w for w in s.get("warnings", [])
+                                                   if "clipped at full scale" not in w]},
         }
         spec_rows.append(row)
 
