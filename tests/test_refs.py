@@ -15,7 +15,7 @@ from sdrx.errors import CaptureError, OutputError, ParameterError
 from sdrx.refs.metrics import tone_sinad_db
 from sdrx.refs.record import record_cases
 from sdrx.refs.runcase import truth_tone_hz
-from sdrx.refs.store import MANIFEST_NAME
+from sdrx.refs.store import MANIFEST_NAME, Store
 from sdrx.refs.verify import verify_cases
 from sdrx.testing import assert_matches_reference
 
@@ -31,6 +31,11 @@ def load_support():
     mod = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(mod)
     return mod
+
+def ref_wav(store, name):
+    """The reference WAV of a case, as the manifest names it."""
+    return Store.open(store).audio_path(name)
+
 
 _support = load_support()
 CHAIN, TUNE, make_capture = _support.CHAIN, _support.TUNE, _support.make_capture
@@ -76,7 +81,7 @@ def test_record_then_verify_passes(bench):
     assert e["chain"]["spec"]["agc"]["enabled"] in (True, False)      # defaults filled in
     assert e["versions"]["sdrx"] == sdrx.__version__
     assert len(e["capture"]["sha256"]) == 64 and len(e["capture"]["meta_sha256"]) == 64
-    info = sf.info(str(store / "bench-1010.wav"))
+    info = sf.info(str(ref_wav(store, "bench-1010")))
     assert info.subtype == "FLOAT" and info.frames == e["audio"]["samples"] > 0
     assert math.isfinite(e["metrics"]["level_dbfs"]) and e["metrics"]["bandwidth_hz"] > 0
     rep = verify_cases(cases, store, failures_dir=folder / "fail")
@@ -102,7 +107,7 @@ def test_bandwidth_change_fails_snr_and_names_case(bench):
     png = folder / "fail" / "bench-1010.spectra.png"
     assert diff.is_file() and png.is_file() and png.stat().st_size < 200_000
     # the difference file is new - reference, and its energy gives the reported SNR back (definition)
-    ref = sf.read(str(store / "bench-1010.wav"), dtype="float64")[0]
+    ref = sf.read(str(ref_wav(store, "bench-1010")), dtype="float64")[0]
     d = sf.read(str(diff), dtype="float64")[0]
     assert 10 * np.log10(np.sum(ref ** 2) / np.sum(d ** 2)) == pytest.approx(r.figures["snr_db"], abs=0.01)
 
@@ -162,7 +167,7 @@ def test_record_refuses_overwrite_without_update(bench):
     before = (store / MANIFEST_NAME).read_bytes()
     with pytest.raises(OutputError, match="case 'bench-exact' exists already; pass --update"):
         record_cases(cases, store)
-    assert (store / MANIFEST_NAME).read_bytes() == before and not (store / "bench-1010.wav").exists()
+    assert (store / MANIFEST_NAME).read_bytes() == before and not list(store.glob("bench-1010*"))
     res = record_cases(cases, store, update=True)
     assert [r.replaced for r in res] == [False, True]
     # re-recording the same inputs gives a byte-identical store
@@ -175,7 +180,7 @@ def test_sinad_recorded_from_truth_sidecar(bench):
     record_cases(cases, store, names="bench-1010")           # the synthesized capture has its sidecar
     met = json.loads((store / MANIFEST_NAME).read_text())["cases"]["bench-1010"]["metrics"]
     assert met["sinad_tone_hz"] == 1000.0
-    assert met["sinad_db"] == pytest.approx(tone_sinad_db(store / "bench-1010.wav", 1000.0), abs=1e-9)
+    assert met["sinad_db"] == pytest.approx(tone_sinad_db(ref_wav(store, "bench-1010"), 1000.0), abs=1e-9)
     assert met["sinad_db"] > 20
 
 
@@ -201,7 +206,7 @@ def test_damaged_store_is_bad_input(bench):
     folder, cases = bench
     store = folder / "store"
     record_cases(cases, store, names="bench-exact")
-    wav = store / "bench-exact.wav"
+    wav = ref_wav(store, "bench-exact")
     wav.write_bytes(wav.read_bytes()[:-100])
     with pytest.raises(CaptureError, match="truncated"):
         verify_cases(cases, store, names="bench-exact")
@@ -236,3 +241,52 @@ def test_fixture_plugin(pytester, bench):
     res = pytester.runpytest_inprocess(*args)
     res.assert_outcomes(failed=1)
     res.stdout.fnmatch_lines(["*FAIL bench-1010: SNR*"])
+
+
+def test_same_inputs_give_byte_identical_store(bench):
+    folder, cases = bench
+    record_cases(cases, folder / "s1")
+    record_cases(cases, folder / "s2")
+    t1 = {p.name: p.read_bytes() for p in (folder / "s1").iterdir()}
+    t2 = {p.name: p.read_bytes() for p in (folder / "s2").iterdir()}
+    assert t1 == t2 and len(t1) == 3 and MANIFEST_NAME in t1
+
+
+def test_record_one_case_keeps_the_others(bench):
+    folder, cases = bench
+    store = folder / "store"
+    record_cases(cases, store, names="bench-1010")
+    record_cases(cases, store, names="bench-exact")
+    m = json.loads((store / MANIFEST_NAME).read_text())
+    assert sorted(m["cases"]) == ["bench-1010", "bench-exact"]
+
+
+def test_interrupted_manifest_write_leaves_old_manifest(bench, monkeypatch):
+    import sdrx.refs.store as store_mod
+
+    folder, cases = bench
+    store = folder / "store"
+    record_cases(cases, store, names="bench-1010")
+    before = (store / MANIFEST_NAME).read_bytes()
+
+    def interrupted(manifest):
+        raise KeyboardInterrupt          # as if the user pressed Ctrl-C while the manifest is written
+
+    monkeypatch.setattr(store_mod, "_dump", interrupted)
+    with pytest.raises(KeyboardInterrupt):
+        record_cases(cases, store, names="bench-1010", update=True)
+    assert (store / MANIFEST_NAME).read_bytes() == before
+    assert not [p for p in store.iterdir() if p.name.endswith(".partial")]
+    assert Store.open(store).check_audio("bench-1010").is_file()   # manifest and its WAV still agree
+
+
+def test_rerecording_removes_the_replaced_wav(bench):
+    folder, cases = bench
+    store = folder / "store"
+    record_cases(cases, store, names="bench-1010")
+    old = ref_wav(store, "bench-1010")
+    (folder / "chains" / "two.toml").write_text(CHAIN.format(bw="9.45k"))
+    record_cases(cases, store, names="bench-1010", update=True)
+    new = ref_wav(store, "bench-1010")
+    assert new != old and new.is_file() and not old.exists()
+    assert sorted(p.name for p in store.iterdir()) == sorted([new.name, MANIFEST_NAME])

@@ -38,9 +38,9 @@ def stored(tmp_path):
 
 def test_write_and_read_back(stored):
     st = Store.open(stored)
-    assert sorted(p.name for p in stored.iterdir()) == ["a.wav", MANIFEST_NAME]
     e = st.entry("a")
     p = st.check_audio("a")
+    assert sorted(x.name for x in stored.iterdir()) == sorted([MANIFEST_NAME, f"a.{e['audio']['sha256'][:12]}.wav"])
     # source: hashlib (standard library) over the file's bytes
     assert e["audio"]["sha256"] == hashlib.sha256(p.read_bytes()).hexdigest() == file_sha256(p)
     assert (e["audio"]["samples"], e["audio"]["fs"], e["audio"]["subtype"]) == (3000, 8000.0, "FLOAT")
@@ -50,7 +50,7 @@ def test_write_and_read_back(stored):
 
 
 def test_manifest_bytes_reproducible(tmp_path, stored):
-    src = stored / "a.wav"
+    src = Store.open(stored).audio_path("a")
     other = Store.for_record(tmp_path / "again")
     other.write_case("a", entry(), src)
     assert (tmp_path / "again" / MANIFEST_NAME).read_bytes() == (stored / MANIFEST_NAME).read_bytes()
@@ -96,14 +96,14 @@ def test_required_fields_cover_what_verify_reads():
 def test_escaping_audio_path(stored):
     mp = stored / MANIFEST_NAME
     m = json.loads(mp.read_text())
-    m["cases"]["a"]["audio"]["file"] = "../a.wav"
+    m["cases"]["a"]["audio"]["file"] = "../a.wav"    # '../' in a manifest path
     mp.write_text(json.dumps(m))
     with pytest.raises(ParameterError, match=r"path '\.\./a\.wav' escapes the store folder"):
         Store.open(stored).check_audio("a")
 
 
 def test_truncated_and_corrupted_wav(stored):
-    wav = stored / "a.wav"
+    wav = Store.open(stored).audio_path("a")
     data = wav.read_bytes()
     wav.write_bytes(data[: len(data) // 2])
     with pytest.raises(CaptureError, match="truncated"):

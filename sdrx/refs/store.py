@@ -4,7 +4,8 @@ Layout::
 
     STORE/
       sdrx-refs.json     the manifest; its presence marks the folder as a store
-      <case>.wav         the reference audio of each case (WAV, 32-bit float)
+      <case>.<hash>.wav  the reference audio of each case (WAV, 32-bit float); <hash> is
+                         the first 12 hex digits of the file's SHA-256
 
 The manifest is JSON (keys sorted, two-space indent, no NaN)::
 
@@ -21,11 +22,14 @@ The manifest is JSON (keys sorted, two-space indent, no NaN)::
 - ``metrics``: level (dBFS), audio bandwidth (Hz), octave band levels, SINAD
   (null without a single-tone truth sidecar).
 
-Writes are atomic per case: the WAV goes to a temporary name and is renamed,
-then the whole manifest is written to a temporary file and renamed, so the
-manifest is never half-written. A reader checks each WAV against the size and
-SHA-256 in the manifest, so a truncated or corrupted reference is found before
-any comparison.
+Writes are atomic per case: the new WAV is written under a temporary name and
+renamed to its content-addressed name (so it never replaces the WAV the
+manifest still points at), then the whole manifest is written to a temporary
+file and renamed, and only then is the case's previous WAV removed. An
+interruption at any point leaves a manifest that is whole and points at WAVs
+that exist and match it. A reader checks each WAV against the size and SHA-256
+in the manifest, so a truncated or corrupted reference is found before any
+comparison.
 """
 
 from __future__ import annotations
@@ -324,12 +328,8 @@ class Store:
         return p
 
     # -- writing ---------------------------------------------------------
-    def reference_name(self, name: str) -> str:
-        """File name of a case's reference WAV inside the store."""
-        return f"{name}.wav"
-
     def write_case(self, name: str, entry: dict, audio_src) -> Path:
-        """Store a case: copy its WAV in atomically, then rewrite the manifest atomically.
+        """Store a case: its WAV in atomically under a content-addressed name, then the manifest.
 
         Parameters
         ----------
@@ -352,21 +352,34 @@ class Store:
                 self.path.mkdir()
             except OSError as exc:
                 raise OutputError(f"--store {self.path}: cannot create folder ({exc.strerror})") from None
-        rel = self.reference_name(name)
+        digest = file_sha256(audio_src)
+        rel = f"{name}.{digest[:12]}.wav"
         dest = self.inside(rel, f"case {name!r}")
         with atomic_path(dest) as tmp:
             shutil.copyfile(audio_src, tmp)
+            if file_sha256(tmp) != digest:
+                raise OutputError(f"--store {self.path}: copy of {audio_src} does not match its source")
             info = sf.info(str(tmp))
-            audio = {"file": rel, "sha256": file_sha256(tmp), "bytes": os.path.getsize(tmp),
+            audio = {"file": rel, "sha256": digest, "bytes": os.path.getsize(tmp),
                      "fs": float(info.samplerate), "channels": info.channels, "samples": info.frames,
                      "subtype": info.subtype}
         entry = dict(entry)
         entry["audio"] = audio
         # re-read the manifest so a concurrent record of another case is not lost
         current = self._read_manifest(self.path) if self.manifest_path.is_file() else self.manifest
+        old = current["cases"].get(name)
         current["cases"][name] = entry
         with atomic_path(self.manifest_path) as tmp:
             tmp.write_text(_dump(current), encoding="utf-8")
         self.manifest = current
         self.exists = True
+        old_file = old.get("audio", {}).get("file") if isinstance(old, dict) else None
+        still_used = {e.get("audio", {}).get("file") for e in current["cases"].values() if isinstance(e, dict)}
+        if isinstance(old_file, str) and old_file not in still_used:
+            try:
+                stale = self.inside(old_file, f"case {name!r}")
+            except ParameterError:
+                stale = None                # never delete outside the store
+            if stale is not None and stale.is_file():
+                stale.unlink()
         return dest
