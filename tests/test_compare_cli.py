@@ -177,3 +177,9 @@ def test_spec_file_with_hostile_name_is_escaped(capture, tmp_path, capsys):
     assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page
     assert "<b>bold</b>" not in page
     assert (out / "b-bold-b.wav").is_file()
+
+
+def test_seed_without_blind_is_not_ignored(capture, tmp_path, capsys):
+    out = tmp_path / "cmp"
+    _bad(capsys, ["compare", str(capture), "--tune", "1M", "wide", "narrow", "-o", str(out), "--seed", "4"],
+         "--seed 4: only draws the blind trials; add --blind N", out)

@@ -387,6 +387,8 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
     if seed is not None:
         if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)):
             raise ParameterError(f"--seed: {seed!r}; give a whole number >= 0")
+        if not plan_n:
+            raise ParameterError(f"--seed {seed}: only draws the blind trials; add --blind N or leave --seed out")
     plan = blind_mod.plan_trials(plan_n, len(choices), blind_mod.fresh_seed() if seed is None else int(seed))
 
     out = Path(out_dir)
