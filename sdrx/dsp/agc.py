@@ -83,22 +83,47 @@ class Agc:
         self.gain_max_db = -math.inf
 
     def _update(self, mean_abs: float) -> None:
+        self._run_intervals([mean_abs])
+
+    def _run_intervals(self, means) -> tuple:
+        """Advance the loop over whole intervals with these mean envelopes.
+
+        Returns the gains (dB) at the start and at the end of each interval.
+        """
         st, sp = self.state, self.spec
-        level_db = 20.0 * math.log10(max(mean_abs, 1e-15)) + 0.5 * (st.prev_gain_db + st.gain_db) + self.fixed_gain_db
-        e = sp.reference_dbfs - level_db
-        g = st.gain_db
-        if e < 0:
-            g += e * self._a_att
-            st.hang_left = self._hang
-        elif st.hang_left > 0:
-            st.hang_left -= 1
-        else:
-            g += e * self._a_rel
-        g = min(max(g, sp.min_gain_db), sp.max_gain_db)
-        st.prev_gain_db, st.gain_db = st.gain_db, g
+        ref = sp.reference_dbfs - self.fixed_gain_db
+        a_att, a_rel, hang = self._a_att, self._a_rel, self._hang
+        gmin, gmax = sp.min_gain_db, sp.max_gain_db
+        prev, g, left = st.prev_gain_db, st.gain_db, st.hang_left
+        log10 = math.log10
+        starts, ends = [], []
+        for m in means:
+            starts.append(prev)
+            ends.append(g)
+            # linear gains are computed from these as Python scalars, identical for any block split
+            e = ref - (20.0 * log10(m if m > 1e-15 else 1e-15) + 0.5 * (prev + g))
+            ng = g
+            if e < 0:
+                ng += e * a_att
+                left = hang
+            elif left > 0:
+                left -= 1
+            else:
+                ng += e * a_rel
+            if ng < gmin:
+                ng = gmin
+            elif ng > gmax:
+                ng = gmax
+            prev, g = g, ng
+        st.prev_gain_db, st.gain_db, st.hang_left = prev, g, left
+        return starts, ends
 
     def process(self, u: np.ndarray):
-        """Apply the gain to ``u``; return (gained signal, total gain in dB per sample)."""
+        """Apply the gain to ``u``; return (gained signal, total gain in dB per sample).
+
+        Within each control interval the linear gain moves in a straight
+        line between the interval's end values.
+        """
         n = len(u)
         st = self.state
         if not self.enabled:
@@ -106,16 +131,21 @@ class Agc:
             if n:
                 self.gain_min_db = min(self.gain_min_db, st.gain_db)
                 self.gain_max_db = max(self.gain_max_db, st.gain_db)
-            return u * 10.0 ** (g / 20.0), g
+            return u * 10.0 ** ((st.gain_db + self.fixed_gain_db) / 20.0), g
         mag = np.abs(u)
-        g_out = np.empty(n)
+        g_db = np.empty(n)
+        g_lin = np.empty(n)
         pos = 0
         step = self.step
+        frac_all = np.arange(step) / step
         while pos < n:
             # finish the current interval (or as much of it as we have)
             take = min(step - st.acc_n, n - pos)
-            frac = (st.acc_n + np.arange(take)) / step
-            g_out[pos:pos + take] = st.prev_gain_db + (st.gain_db - st.prev_gain_db) * frac
+            frac = frac_all[st.acc_n:st.acc_n + take]
+            a, b = st.prev_gain_db, st.gain_db
+            g_db[pos:pos + take] = a + (b - a) * frac
+            la, lb = 10.0 ** (a / 20.0), 10.0 ** (b / 20.0)
+            g_lin[pos:pos + take] = la + (lb - la) * frac
             st.acc_sum += float(np.sum(mag[pos:pos + take]))
             st.acc_n += take
             pos += take
@@ -126,19 +156,15 @@ class Agc:
             whole = (n - pos) // step
             if whole > 0 and st.acc_n == 0:
                 means = mag[pos:pos + whole * step].reshape(whole, step).mean(axis=1)
-                starts = np.empty(whole)
-                ends = np.empty(whole)
-                for i in range(whole):
-                    starts[i] = st.prev_gain_db
-                    ends[i] = st.gain_db
-                    self._update_fast(means[i])
-                frac = np.arange(step) / step
-                g_out[pos:pos + whole * step] = (starts[:, None] + (ends - starts)[:, None] * frac).reshape(-1)
+                starts, ends = self._run_intervals(means.tolist())
+                starts, ends = np.asarray(starts), np.asarray(ends)
+                sl = slice(pos, pos + whole * step)
+                g_db[sl] = (starts[:, None] + (ends - starts)[:, None] * frac_all).reshape(-1)
+                ls = np.array([10.0 ** (v / 20.0) for v in starts.tolist()])
+                le = np.array([10.0 ** (v / 20.0) for v in ends.tolist()])
+                g_lin[sl] = (ls[:, None] + (le - ls)[:, None] * frac_all).reshape(-1)
                 pos += whole * step
-        self.gain_min_db = min(self.gain_min_db, float(g_out.min())) if n else self.gain_min_db
-        self.gain_max_db = max(self.gain_max_db, float(g_out.max())) if n else self.gain_max_db
-        g_tot = g_out + self.fixed_gain_db
-        return u * 10.0 ** (g_tot / 20.0), g_tot
-
-    def _update_fast(self, mean_abs) -> None:
-        self._update(float(mean_abs))
+        if n:
+            self.gain_min_db = min(self.gain_min_db, float(g_db.min()))
+            self.gain_max_db = max(self.gain_max_db, float(g_db.max()))
+        return u * (g_lin * 10.0 ** (self.fixed_gain_db / 20.0)), g_db + self.fixed_gain_db

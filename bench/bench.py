@@ -1,0 +1,138 @@
+"""sdrx benchmark: real-time factors and peak memory, measured side by side in one run.
+
+Run with ``make bench``. It synthesizes its own captures (2.4 MS/s ci16_le I/Q,
+one AM station), then times whole processes, alternating the commands so
+that drift of the machine's speed hits all of them alike:
+
+- ``sdrx receive`` fast path (default chain) on the 20 s capture, and on a
+  capture six times longer (peak memory must stay flat);
+- ``sdrx receive --path exact`` on the 20 s capture;
+- the plain whole-file pipeline of ``bench/baseline.py``.
+
+Figures are medians over the runs; ratios are taken run by run, then the
+median. Nothing here is a pass/fail test; the targets are printed beside the
+figures.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import shutil
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+SCENARIO = """
+[capture]
+kind = "iq"
+rate = "2.4M"
+center = "1.2M"
+datatype = "ci16_le"
+seconds = {seconds}
+noise_dbfs_per_hz = -130
+seed = 7
+
+[[station]]
+name = "Bench Station"
+frequency = "1M"
+level_dbfs = -20
+depth = 0.3
+[station.program]
+kind = "tone"
+frequency = "1k"
+"""
+
+
+def timed(cmd) -> tuple:
+    """Run a command; return (wall seconds, peak RSS in MB)."""
+    t0 = time.perf_counter()
+    p = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, ru = os.wait4(p.pid, 0)
+    wall = time.perf_counter() - t0
+    if os.waitstatus_to_exitcode(status) != 0:
+        err = p.stderr.read().decode(errors="replace")
+        raise SystemExit(f"benchmark command failed: {' '.join(map(str, cmd))}\n{err}")
+    p.stderr.close()
+    return wall, ru.ru_maxrss / 1024.0
+
+
+def make_captures(work: Path, seconds: float, factor: int) -> tuple:
+    sdrx = [sys.executable, "-m", "sdrx"]
+    scen = work / "bench.toml"
+    scen.write_text(SCENARIO.format(seconds=seconds))
+    short = work / "short.sigmf-meta"
+    subprocess.run(sdrx + ["synth", str(scen), "-o", str(short), "--quiet"], check=True, stdout=subprocess.DEVNULL)
+    # the long capture: the same samples repeated, streamed file to file
+    long_meta = work / "long.sigmf-meta"
+    shutil.copyfile(short, long_meta)
+    with open(work / "long.sigmf-data", "wb") as out:
+        for _ in range(factor):
+            with open(work / "short.sigmf-data", "rb") as src:
+                shutil.copyfileobj(src, out, 1 << 24)
+    import json
+
+    meta = json.loads(long_meta.read_text())
+    meta["global"].pop("core:sha512", None)
+    long_meta.write_text(json.dumps(meta, indent=2))
+    return short, long_meta
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--seconds", type=float, default=20.0, help="length of the short capture (s)")
+    ap.add_argument("--factor", type=int, default=6, help="the long capture is this many times longer")
+    ap.add_argument("--runs", type=int, default=3, help="runs of each command")
+    ap.add_argument("--keep", type=Path, default=None, help="keep the captures in this folder")
+    args = ap.parse_args(argv)
+    work = args.keep or Path(tempfile.mkdtemp(prefix="sdrx-bench-"))
+    work.mkdir(parents=True, exist_ok=True)
+    try:
+        print(f"synthesizing captures in {work} ...", flush=True)
+        short, long_ = make_captures(work, args.seconds, args.factor)
+        sdrx = [sys.executable, "-m", "sdrx", "receive", "--tune", "1M", "--quiet", "--force"]
+        cmds = {
+            "fast": sdrx + [str(short), "-o", str(work / "fast.wav")],
+            "exact": sdrx + [str(short), "--path", "exact", "-o", str(work / "exact.wav")],
+            "baseline": [sys.executable, str(HERE / "baseline.py"), str(short), "1e6", str(work / "base.wav")],
+            "fast_long": sdrx + [str(long_), "-o", str(work / "fast_long.wav")],
+        }
+        res = {k: [] for k in cmds}
+        timed(cmds["fast"])  # warm-up: page cache, imports
+        for _ in range(args.runs):
+            for k, c in cmds.items():
+                res[k].append(timed(c))
+        med = {k: (statistics.median(w for w, _ in v), max(m for _, m in v)) for k, v in res.items()}
+        dur = args.seconds
+        ratio_base = statistics.median(b[0] / f[0] for b, f in zip(res["baseline"], res["fast"]))
+        ratio_exact = statistics.median(e[0] / f[0] for e, f in zip(res["exact"], res["fast"]))
+        mem_ratio = med["fast_long"][1] / med["fast"][1]
+        print()
+        print(f"capture: 2.4 MS/s ci16_le I/Q, one AM station, {dur:g} s (long: {dur * args.factor:g} s); "
+              f"{args.runs} runs each, whole processes, medians")
+        print(f"{'run':34s} {'wall s':>8s} {'x real time':>12s} {'peak MB':>9s}   target")
+        rows = [
+            ("fast path, default chain", "fast", dur, ">= 40x real time, <= 300 MB"),
+            ("exact path, default chain", "exact", dur, ">= 5x real time"),
+            ("plain whole-file pipeline", "baseline", dur, ""),
+            (f"fast path, capture x{args.factor}", "fast_long", dur * args.factor, "peak MB within 10 % of fast"),
+        ]
+        for label, k, d, target in rows:
+            w, m = med[k]
+            print(f"{label:34s} {w:8.2f} {d / w:12.1f} {m:9.1f}   {target}")
+        print()
+        print(f"plain pipeline / fast path (wall, paired):  {ratio_base:6.1f}x   target >= 10x")
+        print(f"exact path / fast path (wall, paired):      {ratio_exact:6.1f}x")
+        print(f"peak memory, capture x{args.factor} / capture x1:     {mem_ratio:6.2f}    target <= 1.10")
+    finally:
+        if args.keep is None:
+            shutil.rmtree(work, ignore_errors=True)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
