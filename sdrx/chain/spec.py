@@ -482,8 +482,16 @@ def spec_to_dict(spec: ChainSpec) -> dict:
         "injection": spec.injection,
         "preselector": inv(spec.preselector, _PRESELECTOR_KEYS),
         "mixer": inv(spec.mixer, _MIXER_KEYS),
-        "if_stage": [{k: v for k, v in inv(s, _STAGE_KEYS).items() if v is not None} for s in spec.if_stages],
+        "if_stage": [_stage_to_dict(s, inv(s, _STAGE_KEYS)) for s in spec.if_stages],
         "agc": inv(spec.agc, _AGC_KEYS),
         "detector": inv(spec.detector, _DETECTOR_KEYS),
         "audio": inv(spec.audio, _AUDIO_KEYS),
     }
+
+
+def _stage_to_dict(stage: IfStageSpec, keys: dict) -> dict:
+    """A stage's TOML keys, leaving out unset ones and the order tuned circuits do not accept."""
+    out = {k: v for k, v in keys.items() if v is not None}
+    if stage.response in ("single_tuned", "double_tuned"):
+        out.pop("order", None)
+    return out
