@@ -57,3 +57,16 @@ def test_negative_lag_cuts_the_reference(rng):
     assert al.lags == (0, -25)
     assert al.starts == (25, 0)
     np.testing.assert_array_equal(al.cut(0, x[:-25]), al.cut(1, early))
+
+
+def test_expected_delays_keep_a_tone_from_locking_a_period_off(rng):
+    # a 1 kHz tone (48 samples a period) plus a little noise, the second copy 13 samples late
+    n = int(FS)
+    t = np.arange(n + 13) / FS
+    x = np.cos(2 * np.pi * 1000 * t) + 0.05 * rng.standard_normal(t.size)
+    ref, late = x[13:], x[:-13]
+    # the designs say the second chain is 12.6 samples slower; the search stays within 0.25 ms of that
+    al = align([ref, late], FS, expected_s=[0.0, 12.6 / FS])
+    assert al.lags == (0, 13)
+    # why the window matters: one tone period away the cross-correlation has another peak
+    assert estimate_lag(late, ref, 10, centre=13 - 48) == 13 - 48

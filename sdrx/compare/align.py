@@ -17,7 +17,7 @@ from ..errors import ParameterError
 __all__ = ["Alignment", "estimate_lag", "align"]
 
 
-def estimate_lag(x, ref, max_lag: int) -> int:
+def estimate_lag(x, ref, max_lag: int, centre: int = 0) -> int:
     """Integer lag (samples) by which ``x`` trails ``ref``: ``x[n] ≈ ref[n − lag]``.
 
     Parameters
@@ -25,12 +25,14 @@ def estimate_lag(x, ref, max_lag: int) -> int:
     x, ref : array_like
         Mono signals at the same rate (their means are removed first).
     max_lag : int
-        Largest absolute lag searched, samples.
+        Largest distance from ``centre`` searched, samples.
+    centre : int
+        Lag the search is centred on (an expected lag, e.g. from the designs).
 
     Returns
     -------
     int
-        The lag in ``[-max_lag, max_lag]`` at the peak of the cross-correlation.
+        The lag in ``[centre - max_lag, centre + max_lag]`` at the peak of the cross-correlation.
 
     Notes
     -----
@@ -51,7 +53,7 @@ def estimate_lag(x, ref, max_lag: int) -> int:
     b = b - b.mean()
     r = signal.correlate(a, b, mode="full", method="fft")
     lags = signal.correlation_lags(a.size, b.size, mode="full")
-    keep = np.abs(lags) <= max_lag
+    keep = np.abs(lags - centre) <= max_lag
     return int(lags[keep][np.argmax(r[keep])])
 
 
@@ -79,7 +81,8 @@ class Alignment:
         return np.asarray(x)[s:s + self.length]
 
 
-def align(signals: Sequence, fs: float, *, max_lag_s: float = 0.05) -> Alignment:
+def align(signals: Sequence, fs: float, *, max_lag_s: float = 0.05, expected_s: Sequence | None = None,
+          window_s: float = 0.25e-3) -> Alignment:
     """Align outputs to the first one by the peak of their cross-correlation.
 
     Parameters
@@ -89,8 +92,16 @@ def align(signals: Sequence, fs: float, *, max_lag_s: float = 0.05) -> Alignment
     fs : float
         Sample rate, Hz.
     max_lag_s : float
-        Largest delay difference searched, seconds (50 ms is far more than the
-        group delay of any IF filter of a few kHz bandwidth).
+        Largest delay difference searched without ``expected_s``, seconds (50 ms
+        is far more than the group delay of any IF filter of a few kHz bandwidth).
+    expected_s : sequence of float, optional
+        Expected delay of each output (e.g. the chain's designed group delay);
+        then the peak is searched only within ``window_s`` of the expected
+        difference. This keeps a periodic programme (a test tone) from locking
+        onto a lag one period away.
+    window_s : float
+        Half-width of that search, seconds (0.25 ms: less than half the period
+        of a 1 kHz tone).
 
     Returns
     -------
@@ -120,9 +131,14 @@ def align(signals: Sequence, fs: float, *, max_lag_s: float = 0.05) -> Alignment
     """
     arrays = [np.asarray(s, dtype=np.float64) for s in signals]
     n = min(a.size for a in arrays)
-    max_lag = max(0, int(round(max_lag_s * fs)))
+    if expected_s is None:
+        centres = [0] * len(arrays)
+        max_lag = max(0, int(round(max_lag_s * fs)))
+    else:
+        centres = [int(round((e - expected_s[0]) * fs)) for e in expected_s]
+        max_lag = max(1, int(round(window_s * fs)))
     max_lag = min(max_lag, n // 4)
-    lags = [0] + [estimate_lag(a[:n], arrays[0][:n], max_lag) for a in arrays[1:]]
+    lags = [0] + [estimate_lag(a[:n], arrays[0][:n], max_lag, c) for a, c in zip(arrays[1:], centres[1:])]
     lo, hi = min(lags), max(lags)
     length = n - (hi - lo)
     if length <= 0:

@@ -54,6 +54,8 @@ PEAK_LIMIT_DBFS = -1.0
 SETTLE_S = 0.2
 #: largest delay difference between outputs that alignment searches
 MAX_LAG_S = 0.05
+#: with designed delays known: search this far either side of their difference
+ALIGN_WINDOW_S = 0.25e-3
 KEY_FILE = "blind-key.json"
 PAGE_FILE = "index.html"
 JSON_FILE = "compare.json"
@@ -331,8 +333,9 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
     Notes
     -----
     Alignment: integer lag at the peak of the cross-correlation of each output
-    with the first (:func:`sdrx.compare.align.align`), outputs cut to their
-    common span. Loudness: target ``T = min_i(L_i − 1 dBFS − P_i)`` (L integrated
+    with the first (:func:`sdrx.compare.align.align`), searched within
+    :data:`ALIGN_WINDOW_S` of the difference of the chains' designed group
+    delays (``Receiver.delay_s``), outputs cut to their common span. Loudness: target ``T = min_i(L_i − 1 dBFS − P_i)`` (L integrated
     loudness by ITU-R BS.1770 via pyloudnorm, P sample peak), gain ``T − L_i``:
     all outputs at one loudness, none above −1 dBFS sample peak.
     """
@@ -440,7 +443,7 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
         header={
             "capture": info.to_json(),
             "excerpt": {"start_s": start, "duration_s": duration, "settle_s": SETTLE_S,
-                        "heard_from_s": start + SETTLE_S - preroll},
+                        "heard_from_s": round(start + SETTLE_S - preroll, 9)},
             "path": path,
             "subtitle": (f"Capture {info.path} ({info.kind}, {format_frequency(info.fs)} rate); excerpt "
                          f"{start:g} s + {duration:g} s, heard from {start + SETTLE_S - preroll:g} s after "
@@ -510,7 +513,7 @@ def write_comparison(out_dir, choices, designs, raw, rates, *, plan, tune_hz: fl
     raw = [x[:n] for x in raw]
 
     # ---- align, match loudness -----------------------------------------------------------
-    alignment = align(raw, audio_fs, max_lag_s=MAX_LAG_S)
+    alignment = align(raw, audio_fs, max_lag_s=MAX_LAG_S, expected_s=designed_delays_s, window_s=ALIGN_WINDOW_S)
     cut = [alignment.cut(i, x) for i, x in enumerate(raw)]
     # 0.001 dB of margin keeps the peak at or below the limit after rounding to 16 bits (half an LSB)
     match = match_loudness(cut, audio_fs, peak_limit_dbfs=PEAK_LIMIT_DBFS - 0.001,
@@ -564,8 +567,9 @@ def write_comparison(out_dir, choices, designs, raw, rates, *, plan, tune_hz: fl
         "spacing_hz": spacing,
         "alignment": {
             "reference": labels[0],
-            "method": "integer lag at the peak of the cross-correlation with the first output",
-            "max_lag_ms": MAX_LAG_S * 1e3,
+            "method": ("integer lag at the peak of the cross-correlation with the first output, searched "
+                       + (f"within {ALIGN_WINDOW_S * 1e3:g} ms of the designed group-delay difference"
+                          if designed_delays_s is not None else f"within {MAX_LAG_S * 1e3:g} ms")),
         },
         "loudness": {
             "standard": "ITU-R BS.1770 integrated loudness (pyloudnorm)",
