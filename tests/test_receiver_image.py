@@ -1,0 +1,132 @@
+"""Image physics through the real chain: equal inputs on the wanted and the image frequency.
+
+The capture holds both (fs 1.2 MS/s centred on the LO), the Receiver is tuned
+to 1000 kHz with a 455 kHz IF and high-side LO, so the image is 1910 kHz.
+Image rejection ratio = IF output from the wanted frequency over IF output
+from the image, equal inputs (source: Federal Standard 1037C definition),
+read from the carrier level each run reports, AGC off.
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+from pathlib import Path
+
+import pytest
+
+from sdrx.chain import design_chain
+
+sys.path.insert(0, str(Path(__file__).parent))  # tests/helpers_rx.py (pytest importlib mode)
+from helpers_rx import carrier_level_db, iq_info  # noqa: E402
+
+TUNE = 1000e3
+IF_HZ = 455e3
+FS = 1.2e6
+INFO = iq_info(FS, TUNE + IF_HZ)          # band 855 kHz .. 2055 kHz: wanted and image both inside
+IMAGE = TUNE + 2 * IF_HZ                   # source: common practice, high-side LO: f_image = f + 2·IF
+LEVEL = -20.0
+SECONDS = 0.02
+
+
+def _chain(preselector, mixer=None):
+    spec = {"if_frequency": "455k", "injection": "high", "preselector": preselector,
+            "agc": {"enabled": False}}
+    if mixer is not None:
+        spec["mixer"] = mixer
+    return design_chain(spec)   # default IF stages of the medium chain
+
+
+def _wanted_and_image(d, path="fast"):
+    w = carrier_level_db(d, INFO, TUNE, TUNE, level_dbfs=LEVEL, seconds=SECONDS, settle_s=0.005, path=path)
+    im = carrier_level_db(d, INFO, TUNE, IMAGE, level_dbfs=LEVEL, seconds=SECONDS, settle_s=0.005, path=path)
+    return w, im
+
+
+def test_worked_image_frequency():
+    # CHECKS.md worked example: 1000 kHz, IF 455 kHz -> LO 1455, image 1910 kHz (recomputed above)
+    d = _chain({"kind": "none"})
+    assert d.lo_hz(TUNE) == pytest.approx(TUNE + IF_HZ)
+    assert d.image_hz(TUNE) == pytest.approx(IMAGE)
+    assert IMAGE == pytest.approx(1910e3)
+
+
+@pytest.mark.parametrize("path", ["fast", "exact"])
+def test_real_mixer_without_preselector_passes_the_image_at_the_wanted_level(path):
+    d = _chain({"kind": "none"})
+    w, im = _wanted_and_image(d, path)
+    assert w == pytest.approx(LEVEL, abs=0.1)
+    # source: physical identity — a real multiplier's image response equals its wanted response
+    assert im == pytest.approx(w, abs=0.5)
+
+
+def _preselector_rejection_db(q, f, f_im):
+    rho = f_im / f - f / f_im
+    # source: receiver chapter of communication-systems texts, α = sqrt(1 + Q²ρ²) (single-tuned RF stage)
+    return 20 * math.log10(math.sqrt(1 + (q * rho) ** 2))
+
+
+@pytest.mark.parametrize("q", [10.0, 40.0, 100.0])
+def test_tracking_preselector_rejects_the_image_by_sqrt_1_plus_q2_rho2(q):
+    d = _chain({"kind": "tracking", "q": q})
+    w, im = _wanted_and_image(d)
+    expected = _preselector_rejection_db(q, TUNE, IMAGE)
+    assert w - im == pytest.approx(expected, abs=0.5)
+    if q == 100.0:
+        # CHECKS.md worked example (recomputed above): 1000 kHz, IF 455, Q 100 -> 42.8 dB
+        assert expected == pytest.approx(42.8, abs=0.05)
+
+
+def test_tracking_preselector_exact_path():
+    q = 40.0
+    d = _chain({"kind": "tracking", "q": q})
+    w, im = _wanted_and_image(d, "exact")
+    assert w - im == pytest.approx(_preselector_rejection_db(q, TUNE, IMAGE), abs=0.5)
+
+
+def _irr_db(gain_error_db, phase_deg):
+    g = 10 ** (gain_error_db / 20)
+    c = math.cos(math.radians(phase_deg))
+    # source: image-reject mixer application notes, IRR = (1+γ²+2γcosφ)/(1+γ²−2γcosφ)
+    return 10 * math.log10((1 + g * g + 2 * g * c) / (1 + g * g - 2 * g * c))
+
+
+@pytest.mark.parametrize("gain_error_db, phase_deg", [
+    (20 * math.log10(1.01), 1.0),   # 1 % gain error and 1°: CHECKS.md 39.96 dB
+    (0.0, 1.0),                     # 1° alone: CHECKS.md 41.18 dB
+    (0.5, 3.0),
+    (-1.0, 0.0),
+    (0.0, 0.2),                     # about 55 dB
+    (0.015, 0.12),                  # about 59 dB, near the top of the ±0.5 dB range
+])
+def test_quadrature_mixer_image_rejection_ratio(gain_error_db, phase_deg):
+    d = _chain({"kind": "none"}, {"kind": "quadrature", "gain_error_db": gain_error_db,
+                                   "phase_error_deg": phase_deg})
+    w, im = _wanted_and_image(d)
+    expected = _irr_db(gain_error_db, phase_deg)
+    assert expected <= 60.0
+    assert w - im == pytest.approx(expected, abs=0.5)
+    if (gain_error_db, phase_deg) == (0.0, 1.0):
+        assert expected == pytest.approx(41.18, abs=0.01)
+    if phase_deg == 1.0 and gain_error_db > 0:
+        assert expected == pytest.approx(39.96, abs=0.01)
+
+
+def test_quadrature_mixer_exact_path():
+    ge, ph = 20 * math.log10(1.01), 1.0
+    d = _chain({"kind": "none"}, {"kind": "quadrature", "gain_error_db": ge, "phase_error_deg": ph})
+    w, im = _wanted_and_image(d, "exact")
+    assert w == pytest.approx(LEVEL, abs=0.1)
+    assert w - im == pytest.approx(_irr_db(ge, ph), abs=0.5)
+
+
+def test_low_side_injection_image_below_the_tuning():
+    tune = 1500e3
+    info = iq_info(FS, tune - IF_HZ)            # band 445 kHz .. 1645 kHz
+    d = design_chain({"if_frequency": "455k", "injection": "low", "preselector": {"kind": "tracking", "q": 40},
+                      "agc": {"enabled": False}})
+    f_im = tune - 2 * IF_HZ                     # source: common practice, low-side LO: f_image = f − 2·IF
+    assert d.image_hz(tune) == pytest.approx(f_im)
+    w = carrier_level_db(d, info, tune, tune, level_dbfs=LEVEL, seconds=SECONDS, settle_s=0.005)
+    im = carrier_level_db(d, info, tune, f_im, level_dbfs=LEVEL, seconds=SECONDS, settle_s=0.005)
+    assert w - im == pytest.approx(_preselector_rejection_db(40.0, tune, f_im), abs=0.5)
