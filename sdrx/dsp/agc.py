@@ -47,7 +47,9 @@ class Agc:
     fixed_gain_db : float
         Gain of the stages the AGC does not move.
     start_gain_db : float
-        Initial gain of the AGC stage(s).
+        Gain of the AGC stage(s) when the loop is off; with the loop on, it
+        starts settled: at the gain that holds the reference for the carrier
+        level of the first interval.
     hold_gain_db : float, optional
         Hold the AGC stage gain at this value (AGC held, as for the
         single-signal selectivity method).
@@ -75,6 +77,7 @@ class Agc:
         if self.enabled:
             g0 = min(max(g0, spec.min_gain_db), spec.max_gain_db)
         self.state = AgcState(g0, g0, 0, 0.0, 0)
+        self._settled = not self.enabled   # the loop starts settled on the first interval
         T = step / fs
         self._a_att = 1.0 - math.exp(-T / (spec.attack_ms * 1e-3))
         self._a_rel = 1.0 - math.exp(-T / (spec.release_ms * 1e-3))
@@ -133,6 +136,14 @@ class Agc:
                 self.gain_max_db = max(self.gain_max_db, st.gain_db)
             return u * 10.0 ** ((st.gain_db + self.fixed_gain_db) / 20.0), g
         mag = np.abs(u)
+        if not self._settled and n:
+            # start as a receiver already tuned to the station: the gain that holds the
+            # reference for the first interval's carrier level (clamped to the range)
+            m0 = float(np.mean(mag[:self.step]))
+            need = self.spec.reference_dbfs - self.fixed_gain_db - 20.0 * math.log10(max(m0, 1e-15))
+            g0 = min(max(need, self.spec.min_gain_db), self.spec.max_gain_db)
+            st.prev_gain_db = st.gain_db = g0
+            self._settled = True
         g_db = np.empty(n)
         g_lin = np.empty(n)
         pos = 0
