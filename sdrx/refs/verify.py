@@ -191,6 +191,23 @@ def verify_cases(cases_file, store, *, names=None, junit=None, failures_dir=None
     Figures and limits are those of :func:`sdrx.refs.metrics.compare_audio`:
     SNR = 10·log10(Σ ref² / Σ (new − ref)²) without alignment, RMS level change,
     and the largest octave-band level change.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> from sdrx.synth import synthesize
+    >>> from sdrx.refs import record_cases
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (d / "sc.toml").write_text('[capture]\\nkind = "iq"\\nrate = "48k"\\ncenter = "1M"\\nseconds = 0.1\\n'
+    ...     '[[station]]\\nname = "Point"\\nfrequency = "1005k"\\nlevel_dbfs = -20\\n'
+    ...     '[station.program]\\nkind = "tone"\\nfrequency = "1k"\\n')
+    >>> _ = synthesize(d / "sc.toml", d / "cap.sigmf-meta")
+    >>> _ = (d / "cases.toml").write_text('[[case]]\\nname = "point"\\ncapture = "cap.sigmf-meta"\\n'
+    ...                                   'tune = "1005k"\\nchain = "medium"\\n')
+    >>> _ = record_cases(d / "cases.toml", d / "store")
+    >>> report = verify_cases(d / "cases.toml", d / "store")
+    >>> print(report.lines()[0])
+    PASS point: SNR inf dB (min 60.0), level +0.000 dB (max 0.100), spectrum 0.00 dB (max 0.50)
     """
     cf = load_cases(cases_file)
     cases = select_cases(cf, names)
