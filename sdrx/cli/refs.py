@@ -15,10 +15,10 @@ def command():
 
     A cases file (TOML) lists captures, tunings, chains and tolerances;
     `record` stores each case's audio and a manifest, `verify` reruns the
-    cases and compares. Example:
+    cases and compares. Examples:
 
+    \b
         sdrx refs record tests/refs/cases.toml --store tests/refs/store
-
         sdrx refs verify tests/refs/cases.toml --store tests/refs/store --junit refs.xml
     """
 
