@@ -218,9 +218,12 @@ class MixerDesign:
 
     A real multiplier passes wanted and image each with 1/2. A quadrature
     (image-reject) mixer with gain ratio γ and phase error φ passes the
-    wanted with K1 = (1 + γe^{-jφ})/2 and the image with K2 = (1 − γe^{jφ})/2,
+    wanted with K1 = (1 + γe^{-jφ})/2 and the image with K2 = (1 − γe^{-jφ})/2,
     so IRR = |K1/K2|² = (1+γ²+2γcosφ)/(1+γ²−2γcosφ) (image-reject mixer
-    application notes), both times the 1/2 of the multiplication.
+    application notes), both times the 1/2 of the multiplication. Both act
+    on the upright envelopes (high-side u = conj(K1·w) + K2·v, low-side
+    u = K1·w + conj(K2·v)), which is what the exact path's LO
+    cos θ + jsγ·sin(θ + φ) gives.
     """
 
     kind: str
@@ -247,7 +250,7 @@ class MixerDesign:
         """Conversion factor of the image side."""
         if self.kind == "real":
             return 0.5
-        return 0.5 * (1 - self.gamma * np.exp(1j * self.phi_rad)) / 2
+        return 0.5 * (1 - self.gamma * np.exp(-1j * self.phi_rad)) / 2
 
 
 @dataclass(frozen=True)
