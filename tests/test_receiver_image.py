@@ -120,6 +120,23 @@ def test_quadrature_mixer_exact_path():
     assert w - im == pytest.approx(_irr_db(ge, ph), abs=0.5)
 
 
+@pytest.mark.parametrize("path", ["fast", "exact"])
+def test_wanted_and_image_carriers_beat_with_the_mixing_phase(path):
+    # LO cos(2π f_LO t) with t = 0 at the capture's first sample. A wanted carrier A·e^{jα} comes out at the
+    # IF as (A/2)·e^{-jα} (high-side: inverted), an image carrier A·e^{jβ} as (A/2)·e^{jβ}; together
+    # |e^{-jα} + e^{jβ}| = 2|cos((α+β)/2)|: in phase +6.02 dB, α = β = π/2 they cancel.
+    # source: physical identity — product of cosines (cos a·cos b = ½cos(a−b) + ½cos(a+b))
+    d = _chain({"kind": "none"})
+    n = int(SECONDS * FS)
+    from helpers_rx import carrier, run_receiver
+
+    for alpha, beta in [(0.0, 0.0), (1.0, -1.0), (0.3, 0.9)]:
+        x = carrier(TUNE, LEVEL, FS, INFO.center_hz, n, alpha) + carrier(IMAGE, LEVEL, FS, INFO.center_hz, n, beta)
+        _, rx = run_receiver(d, INFO, TUNE, x, path=path)
+        expected = LEVEL + 20 * math.log10(2 * abs(math.cos((alpha + beta) / 2)))
+        assert rx.stats(0.005)["carrier_dbfs"]["mean"] == pytest.approx(expected, abs=0.1), (alpha, beta)
+
+
 def test_low_side_injection_image_below_the_tuning():
     tune = 1500e3
     info = iq_info(FS, tune - IF_HZ)            # band 445 kHz .. 1645 kHz
