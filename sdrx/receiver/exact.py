@@ -125,9 +125,10 @@ class _RfSynthesizer:
             X = sfft.fft(view, axis=1, workers=2) if self.kind == "iq" else sfft.rfft(view, axis=1, workers=2)
             Y = np.zeros((b, self.n_o // 2 + 1), np.complex64)
             Y[:, self.k_out] = X[:, self.k_in] * self.H
-            # the centre shift by kc bins moves each segment's start phase by kc·start/n_s cycles
+            # the centre shift by kc bins, applied after the filter, needs each segment's phase
+            # kc·(start − P/2)/n_s cycles: the absolute start, less the filter delay that is dropped
             if self.kind == "iq" and self.kc:
-                starts = self._start + (b0 + np.arange(b, dtype=np.int64)) * self.l_s
+                starts = self._start + (b0 + np.arange(b, dtype=np.int64)) * self.l_s - self.p_s // 2
                 ph = np.exp(1j * TWO_PI * ((self.kc * (starts % self.n_s)) % self.n_s) / self.n_s)
                 Y *= ph.astype(np.complex64)[:, None]
             r = sfft.irfft(Y, self.n_o, axis=1, workers=2)[:, self.p_o:]
@@ -219,6 +220,8 @@ class ExactFrontEnd:
                                        first_sample=self._n_if, batch=8,
                                        dtype=np.complex128 if self.quadrature else np.float64)
         self._drop = self.plan_if.delay_out
+        self._pool = None
+        self._pending = None
 
     def _lo_slice(self, name: str, off: int, n: int):
         """n samples of a periodic LO table from offset off (tables are extended once, as needed)."""
@@ -263,13 +266,37 @@ class ExactFrontEnd:
             self._drop -= k
         return u
 
+    def _tail(self, r):
+        return self._down(self.channelizer.process(self._mix_and_filter(r)))
+
     def process(self, x):
-        y = self._mix_and_filter(self.synth.process(x))
-        return self._down(self.channelizer.process(y))
+        """Feed capture samples; returns the IF envelope up to the previous block.
+
+        The RF synthesis of this block runs in a worker thread while the mixer,
+        IF stages and channelizer work on the previous one (numpy and scipy
+        release the GIL), so the two cores share the work. The order of
+        operations is the same as without the thread: the output is identical.
+        """
+        if self._pool is None:
+            from concurrent.futures import ThreadPoolExecutor
+
+            self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="sdrx-rf")
+        fut = self._pool.submit(self.synth.process, x)
+        out = self._tail(self._pending) if self._pending is not None else np.zeros(0, complex)
+        self._pending = fut.result()
+        return out
 
     def flush(self):
+        parts = []
+        if self._pending is not None:
+            parts.append(self._tail(self._pending))
+            self._pending = None
+        if self._pool is not None:
+            self._pool.shutdown(wait=True)
+            self._pool = None
         y = self._mix_and_filter(self.synth.flush())
-        a = self._down(self.channelizer.process(y))
+        parts.append(self._down(self.channelizer.process(y)))
+        a = np.concatenate(parts)
         b = self._down(self.channelizer.process(np.zeros(self.plan_if.overlap, self.channelizer.dtype)))
         c = self._down(self.channelizer.flush())
         return np.concatenate([a, b, c])

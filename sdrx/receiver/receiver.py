@@ -108,6 +108,8 @@ class Receiver:
         self._n_out = 0
         self._drop = self.backend.resampler.delay_out
         self._flushed = False
+        self._pool = None      # worker thread for the fast path's front end
+        self._pending = None   # its output for the previous block
 
     @property
     def delay_s(self) -> float:
@@ -132,18 +134,39 @@ class Receiver:
         return a
 
     def process(self, block: np.ndarray) -> np.ndarray:
-        """Feed capture samples; return the audio they complete."""
+        """Feed capture samples; return the audio completed so far.
+
+        In the fast path the front end (channelizer) works on this block in a
+        worker thread while the backend (AGC, detector, audio) works on the
+        previous one, so the audio returned lags by one block; :meth:`flush`
+        returns the rest. The result does not depend on the threading.
+        """
         if self._flushed:
             raise RuntimeError("Receiver already flushed")
         self._n_in += len(block)
-        u = self.front.process(block)
-        return self._out(self.backend.process(u))
+        if self.path != "fast":
+            return self._out(self.backend.process(self.front.process(block)))
+        if self._pool is None:
+            from concurrent.futures import ThreadPoolExecutor
+
+            self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="sdrx-front")
+        fut = self._pool.submit(self.front.process, block)
+        out = self.backend.process(self._pending) if self._pending is not None else np.zeros(0)
+        self._pending = fut.result()
+        return self._out(out)
 
     def flush(self) -> np.ndarray:
         """End of input: return the remaining audio, so that the total is duration × audio rate."""
         self._flushed = True
+        head = np.zeros(0)
+        if self._pending is not None:
+            head = self._out(self.backend.process(self._pending))
+            self._pending = None
+        if self._pool is not None:
+            self._pool.shutdown(wait=True)
+            self._pool = None
         target = int(math.floor(self._n_in * self.audio_fs / self.info.fs + 1e-9))
-        parts = [self._out(self.backend.process(self.front.flush())), self._out(self.backend.flush())]
+        parts = [head, self._out(self.backend.process(self.front.flush())), self._out(self.backend.flush())]
         tail = np.concatenate(parts)
         have_before = self._n_out - len(tail)
         need = max(0, target - have_before)
