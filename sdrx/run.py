@@ -152,7 +152,9 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
     }
     if path == "exact":
         summary["if_rate_hz"] = rx.front.fs_if
-    if clipped:
+    if clipped and float_output:
+        summary["warnings"].append(f"{clipped} audio samples exceed full scale (kept as they are in the float WAV)")
+    elif clipped:
         summary["warnings"].append(f"{clipped} audio samples clipped at full scale")
     if summary_path is not None:
         write_json(summary_path, summary, force=True)
