@@ -58,6 +58,9 @@ class DiodeDetector:
         self.fs = fs
         self.la = -1.0 / (rc_s * fs)   # log of the per-sample discharge
         self.v = 0.0                   # capacitor voltage (state)
+        self._chunk = 4096             # keeps k·|la| small enough for float64 logs
+        self._pos = 0                  # samples into the current chunk (state; chunks are absolute)
+        self._cm = -math.inf           # running maximum of log|u[k]| − k·la in the current chunk (state)
 
     def process(self, u: np.ndarray) -> np.ndarray:
         mag = np.abs(u)
@@ -65,20 +68,25 @@ class DiodeDetector:
         if n == 0:
             return mag
         out = np.empty(n)
-        chunk = 4096  # keeps k·|la| small enough for float64 logs
+        chunk = self._chunk
         pos = 0
         while pos < n:
-            m = mag[pos:pos + chunk]
-            k = np.arange(len(m))
+            if self._pos == 0:
+                # a new chunk starts from the capacitor voltage, decayed one step before its first sample
+                self._cm = math.log(max(self.v, 1e-300)) + self.la
+            take = min(chunk - self._pos, n - pos)
+            m = mag[pos:pos + take]
+            k = self._pos + np.arange(take)
             with np.errstate(divide="ignore"):
                 b = np.log(np.maximum(m, 1e-300)) - k * self.la
-            start = math.log(max(self.v, 1e-300)) + self.la  # v decays one step before sample 0
-            b[0] = max(b[0], start)
+            b[0] = max(b[0], self._cm)
             cm = np.maximum.accumulate(b)
             seg = np.exp(cm + k * self.la)
-            out[pos:pos + len(m)] = seg
+            out[pos:pos + take] = seg
+            self._cm = float(cm[-1])
             self.v = float(seg[-1])
-            pos += len(m)
+            self._pos = (self._pos + take) % chunk
+            pos += take
         return out
 
 
