@@ -434,6 +434,7 @@ def measure_levels_dbfs(design, tune_hz, freqs_hz, spacing_hz=10e3, *, path="fas
         rx = Receiver(design, info, tune_hz, path=path, agc_hold_gain_db=hold_gain_db)
         x = amplitude * np.exp(2j * math.pi * (f - info.center_hz) * t)
         rx.process(x.astype(np.complex64))
+        rx.flush()
         level = rx.stats(settle_s=settle_s)["carrier_dbfs"]["mean"]
         out[i] = -math.inf if level is None else level
         if progress is not None:

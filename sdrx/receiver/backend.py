@@ -90,12 +90,18 @@ class Backend:
         self.resampler = RationalResampler(fs_ch, au.rate_hz)
         self.meter = LevelMeter(fs_ch)
 
-    def process(self, u: np.ndarray) -> np.ndarray:
-        """IF output (complex envelope, ungained) -> audio samples."""
+    def process(self, u: np.ndarray, meter_n=None) -> np.ndarray:
+        """IF output (complex envelope, ungained) -> audio samples.
+
+        ``meter_n`` limits the level statistics to the first samples (the
+        rest is the ring-down after the end of the input).
+        """
         if len(u) == 0:
             return np.zeros(0)
         ug, _g = self.agc.process(u)
-        self.meter.feed(np.abs(u), np.abs(ug))
+        k = len(u) if meter_n is None else min(len(u), meter_n)
+        if k:
+            self.meter.feed(np.abs(u[:k]), np.abs(ug[:k]))
         d = self.detector.process(ug)
         a, self.zi_audio = signal.sosfilt(self.sos_audio, d, zi=self.zi_audio)
         return self.resampler.process(a * self.audio_gain)

@@ -108,6 +108,7 @@ class Receiver:
         self._n_out = 0
         self._drop = self.backend.resampler.delay_out
         self._flushed = False
+        self._n_u = 0          # channel-rate samples passed to the backend
         self._pool = None      # worker thread for the fast path's front end
         self._pending = None   # its output for the previous block
 
@@ -124,6 +125,10 @@ class Receiver:
         ph_a = np.unwrap(np.angle(h1))
         tau_audio = -(ph_a[1] - ph_a[0]) / (2 * math.pi * 20.0)
         return float(tau_if + tau_audio)
+
+    def _back(self, u: np.ndarray, meter_n=None) -> np.ndarray:
+        self._n_u += len(u)
+        return self.backend.process(u, meter_n=meter_n)
 
     def _out(self, a: np.ndarray) -> np.ndarray:
         if self._drop:
@@ -145,13 +150,13 @@ class Receiver:
             raise RuntimeError("Receiver already flushed")
         self._n_in += len(block)
         if self.path != "fast":
-            return self._out(self.backend.process(self.front.process(block)))
+            return self._out(self._back(self.front.process(block)))
         if self._pool is None:
             from concurrent.futures import ThreadPoolExecutor
 
             self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="sdrx-front")
         fut = self._pool.submit(self.front.process, block)
-        out = self.backend.process(self._pending) if self._pending is not None else np.zeros(0)
+        out = self._back(self._pending) if self._pending is not None else np.zeros(0)
         self._pending = fut.result()
         return self._out(out)
 
@@ -160,13 +165,18 @@ class Receiver:
         self._flushed = True
         head = np.zeros(0)
         if self._pending is not None:
-            head = self._out(self.backend.process(self._pending))
+            head = self._out(self._back(self._pending))
             self._pending = None
         if self._pool is not None:
             self._pool.shutdown(wait=True)
             self._pool = None
         target = int(math.floor(self._n_in * self.audio_fs / self.info.fs + 1e-9))
-        parts = [head, self._out(self.backend.process(self.front.flush())), self._out(self.backend.flush())]
+        # the front end's tail runs past the input (zero padding, so the filters ring down as
+        # after a real end of signal); the level statistics count only the input's duration
+        n_ch = int(math.ceil(self._n_in * self.fs_ch / self.info.fs - 1e-9))
+        tail_u = self.front.flush()
+        parts = [head, self._out(self._back(tail_u, meter_n=max(0, n_ch - self._n_u))),
+                 self._out(self.backend.flush())]
         tail = np.concatenate(parts)
         have_before = self._n_out - len(tail)
         need = max(0, target - have_before)
@@ -180,6 +190,8 @@ class Receiver:
     def _finish_warnings(self) -> None:
         det = self.design.detector
         depths = self.backend.meter.depths
+        if len(depths) > 1:
+            depths = depths[1:]   # the first window holds the filters' start-up
         if det.kind == "diode" and depths:
             m = float(np.percentile(depths, 90)) if len(depths) > 1 else float(depths[0])
             fm = self.design.audio.lowpass_hz
