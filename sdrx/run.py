@@ -23,7 +23,7 @@ from .units import parse_frequency
 
 __all__ = ["receive", "Receiver", "run_receiver", "write_json"]
 
-DEFAULT_BLOCK = 1 << 18
+DEFAULT_BLOCK = 1 << 20
 
 
 def write_json(path, obj, *, force: bool = True, inputs=()) -> None:
@@ -43,7 +43,7 @@ def run_receiver(reader, rx: Receiver, *, first: int, count: int, block_size: in
     fs = reader.info.fs
     done = 0
     n_audio = 0
-    for block in reader.blocks(block_size, start_s=first / fs, duration_s=count / fs):
+    for block in _prefetch(reader.blocks(block_size, start_s=first / fs, duration_s=count / fs)):
         a = rx.process(block)
         done += len(block)
         if len(a):
@@ -59,6 +59,46 @@ def run_receiver(reader, rx: Receiver, *, first: int, count: int, block_size: in
     if progress is not None:
         progress(count, count)
     return n_audio
+
+
+def _prefetch(blocks, depth: int = 2):
+    """Iterate over ``blocks`` with the next ones read ahead in a thread (file reads and
+    sample conversion release the GIL, so reading overlaps the processing). Exceptions
+    from the reader are raised here, in order."""
+    import queue
+    import threading
+
+    q: queue.Queue = queue.Queue(maxsize=depth)
+    stop = threading.Event()
+    end = object()
+
+    def run():
+        try:
+            for b in blocks:
+                if stop.is_set():
+                    return
+                q.put((b, None))
+            q.put((end, None))
+        except BaseException as exc:  # handed to the consumer
+            q.put((None, exc))
+
+    t = threading.Thread(target=run, name="sdrx-read", daemon=True)
+    t.start()
+    try:
+        while True:
+            b, exc = q.get()
+            if exc is not None:
+                raise exc
+            if b is end:
+                return
+            yield b
+    finally:
+        stop.set()
+        while t.is_alive():
+            try:
+                q.get_nowait()
+            except queue.Empty:
+                t.join(0.01)
 
 
 def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, path: str = "fast",

@@ -91,7 +91,9 @@ class Agc:
     def _run_intervals(self, means) -> tuple:
         """Advance the loop over whole intervals with these mean envelopes.
 
-        Returns the gains (dB) at the start and at the end of each interval.
+        Returns lists of the gains at the start and at the end of each
+        interval, in dB and as linear factors (computed here as Python
+        scalars, so that they are the same for any block split).
         """
         st, sp = self.state, self.spec
         ref = sp.reference_dbfs - self.fixed_gain_db
@@ -99,11 +101,13 @@ class Agc:
         gmin, gmax = sp.min_gain_db, sp.max_gain_db
         prev, g, left = st.prev_gain_db, st.gain_db, st.hang_left
         log10 = math.log10
-        starts, ends = [], []
+        lprev, lg = 10.0 ** (prev / 20.0), 10.0 ** (g / 20.0)
+        starts, ends, lstarts, lends = [], [], [], []
         for m in means:
             starts.append(prev)
             ends.append(g)
-            # linear gains are computed from these as Python scalars, identical for any block split
+            lstarts.append(lprev)
+            lends.append(lg)
             e = ref - (20.0 * log10(m if m > 1e-15 else 1e-15) + 0.5 * (prev + g))
             ng = g
             if e < 0:
@@ -118,24 +122,29 @@ class Agc:
             elif ng > gmax:
                 ng = gmax
             prev, g = g, ng
+            lprev, lg = lg, 10.0 ** (ng / 20.0)
         st.prev_gain_db, st.gain_db, st.hang_left = prev, g, left
-        return starts, ends
+        return starts, ends, lstarts, lends
 
-    def process(self, u: np.ndarray):
+    def process(self, u: np.ndarray, mag=None, want_db: bool = True):
         """Apply the gain to ``u``; return (gained signal, total gain in dB per sample).
 
         Within each control interval the linear gain moves in a straight
-        line between the interval's end values.
+        line between the interval's end values. ``mag`` may pass |u| when
+        the caller has it; with ``want_db=False`` the dB trace is not built
+        (None is returned in its place).
         """
         n = len(u)
         st = self.state
+        fixed_lin = 10.0 ** (self.fixed_gain_db / 20.0)
         if not self.enabled:
-            g = np.full(n, st.gain_db + self.fixed_gain_db)
             if n:
                 self.gain_min_db = min(self.gain_min_db, st.gain_db)
                 self.gain_max_db = max(self.gain_max_db, st.gain_db)
+            g = np.full(n, st.gain_db + self.fixed_gain_db) if want_db else None
             return u * 10.0 ** ((st.gain_db + self.fixed_gain_db) / 20.0), g
-        mag = np.abs(u)
+        if mag is None:
+            mag = np.abs(u)
         if not self._settled and n:
             # start as a receiver already tuned to the station: the gain that holds the
             # reference for the first interval's carrier level (clamped to the range)
@@ -144,17 +153,20 @@ class Agc:
             g0 = min(max(need, self.spec.min_gain_db), self.spec.max_gain_db)
             st.prev_gain_db = st.gain_db = g0
             self._settled = True
-        g_db = np.empty(n)
+        g_db = np.empty(n) if want_db else None
         g_lin = np.empty(n)
-        pos = 0
         step = self.step
         frac_all = np.arange(step) / step
+        lo_db, hi_db = math.inf, -math.inf
+        pos = 0
         while pos < n:
             # finish the current interval (or as much of it as we have)
             take = min(step - st.acc_n, n - pos)
             frac = frac_all[st.acc_n:st.acc_n + take]
             a, b = st.prev_gain_db, st.gain_db
-            g_db[pos:pos + take] = a + (b - a) * frac
+            lo_db, hi_db = min(lo_db, a, b), max(hi_db, a, b)
+            if want_db:
+                g_db[pos:pos + take] = a + (b - a) * frac
             la, lb = 10.0 ** (a / 20.0), 10.0 ** (b / 20.0)
             g_lin[pos:pos + take] = la + (lb - la) * frac
             st.acc_sum += float(np.sum(mag[pos:pos + take]))
@@ -166,16 +178,19 @@ class Agc:
             # whole intervals in one vectorised pass where possible
             whole = (n - pos) // step
             if whole > 0 and st.acc_n == 0:
-                means = mag[pos:pos + whole * step].reshape(whole, step).mean(axis=1)
-                starts, ends = self._run_intervals(means.tolist())
-                starts, ends = np.asarray(starts), np.asarray(ends)
                 sl = slice(pos, pos + whole * step)
-                g_db[sl] = (starts[:, None] + (ends - starts)[:, None] * frac_all).reshape(-1)
-                ls = np.array([10.0 ** (v / 20.0) for v in starts.tolist()])
-                le = np.array([10.0 ** (v / 20.0) for v in ends.tolist()])
+                means = mag[sl].reshape(whole, step).mean(axis=1)
+                starts, ends, ls, le = self._run_intervals(means.tolist())
+                lo_db = min(lo_db, min(starts), min(ends))
+                hi_db = max(hi_db, max(starts), max(ends))
+                if want_db:
+                    sa, ea = np.asarray(starts), np.asarray(ends)
+                    g_db[sl] = (sa[:, None] + (ea - sa)[:, None] * frac_all).reshape(-1)
+                ls, le = np.asarray(ls), np.asarray(le)
                 g_lin[sl] = (ls[:, None] + (le - ls)[:, None] * frac_all).reshape(-1)
                 pos += whole * step
         if n:
-            self.gain_min_db = min(self.gain_min_db, float(g_db.min()))
-            self.gain_max_db = max(self.gain_max_db, float(g_db.max()))
-        return u * (g_lin * 10.0 ** (self.fixed_gain_db / 20.0)), g_db + self.fixed_gain_db
+            self.gain_min_db = min(self.gain_min_db, lo_db)
+            self.gain_max_db = max(self.gain_max_db, hi_db)
+        g_lin *= fixed_lin
+        return u * g_lin, (g_db + self.fixed_gain_db if want_db else None)

@@ -206,7 +206,7 @@ class Channelizer:
     """
 
     def __init__(self, plan: ChannelPlan, is_complex: bool, channels: Sequence[ChannelSpec],
-                 first_sample: int = 0, batch: int = 32, dtype=None):
+                 first_sample: int = 0, batch: int = 64, dtype=None):
         self.plan = plan
         self.is_complex = is_complex
         self.tables = [_ChannelTables(plan, is_complex, c) for c in channels]
@@ -216,6 +216,7 @@ class Channelizer:
         self._buf = np.zeros(plan.overlap, dtype)   # P zeros of history before the first sample
         self._next_start = first_sample - plan.overlap  # absolute index of _buf[0]
         self._batch = batch
+        self.workers = 2
         self.dtype = dtype
 
     def process(self, x: np.ndarray) -> list:
@@ -244,13 +245,13 @@ class Channelizer:
             base = done * L
             view = np.lib.stride_tricks.sliding_window_view(self._buf[base: base + (b - 1) * L + N], N)[::L]
             if self.is_complex:
-                X = sfft.fft(view, axis=1, workers=2)
+                X = sfft.fft(view, axis=1, workers=self.workers)
             else:
-                X = sfft.rfft(view, axis=1, workers=2)
+                X = sfft.rfft(view, axis=1, workers=self.workers)
             starts = self._next_start + base + np.arange(b, dtype=np.int64) * L
             for t, out in zip(self.tables, outs):
                 Y = X[:, t.idx] * t.H
-                z = sfft.ifft(Y, axis=1, workers=2)[:, t.keep0:]
+                z = sfft.ifft(Y, axis=1, workers=self.workers)[:, t.keep0:]
                 z *= t.col_phasor
                 z *= t.row_phasor(starts, N)[:, None]
                 out.append(z.reshape(-1))

@@ -98,10 +98,11 @@ class Backend:
         """
         if len(u) == 0:
             return np.zeros(0)
-        ug, _g = self.agc.process(u)
+        mag = np.abs(u)
+        ug, _ = self.agc.process(u, mag=mag, want_db=False)
         k = len(u) if meter_n is None else min(len(u), meter_n)
         if k:
-            self.meter.feed(np.abs(u[:k]), np.abs(ug[:k]))
+            self.meter.feed(mag[:k], np.abs(ug[:k]))
         d = self.detector.process(ug)
         a, self.zi_audio = signal.sosfilt(self.sos_audio, d, zi=self.zi_audio)
         return self.resampler.process(a * self.audio_gain)
