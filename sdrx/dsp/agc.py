@@ -32,7 +32,7 @@ class AgcState:
     gain_db: float          # AGC stage gain at the end of the current interval
     prev_gain_db: float     # at its start
     hang_left: int
-    acc_sum: float          # |u| summed over the current, unfinished interval
+    acc: np.ndarray         # |u| over the current, unfinished interval (acc_n values used)
     acc_n: int
 
 
@@ -67,7 +67,7 @@ class Agc:
     """
 
     def __init__(self, spec, fs: float, fixed_gain_db: float, start_gain_db: float,
-                 hold_gain_db: float | None = None, step: int = 32):
+                 hold_gain_db: float | None = None, step: int = 64):
         self.spec = spec
         self.fs = fs
         self.step = step
@@ -76,7 +76,7 @@ class Agc:
         g0 = hold_gain_db if hold_gain_db is not None else start_gain_db
         if self.enabled:
             g0 = min(max(g0, spec.min_gain_db), spec.max_gain_db)
-        self.state = AgcState(g0, g0, 0, 0.0, 0)
+        self.state = AgcState(g0, g0, 0, np.zeros(step), 0)
         self._settled = not self.enabled   # the loop starts settled on the first interval
         T = step / fs
         self._a_att = 1.0 - math.exp(-T / (spec.attack_ms * 1e-3))
@@ -84,6 +84,7 @@ class Agc:
         self._hang = int(round(spec.hang_ms * 1e-3 / T))
         self.gain_min_db = math.inf
         self.gain_max_db = -math.inf
+        self.trace = None   # set to a list to keep each block's total gain in dB (tests, plots)
 
     def _update(self, mean_abs: float) -> None:
         self._run_intervals([mean_abs])
@@ -136,12 +137,15 @@ class Agc:
         """
         n = len(u)
         st = self.state
+        want_db = want_db or self.trace is not None
         fixed_lin = 10.0 ** (self.fixed_gain_db / 20.0)
         if not self.enabled:
             if n:
                 self.gain_min_db = min(self.gain_min_db, st.gain_db)
                 self.gain_max_db = max(self.gain_max_db, st.gain_db)
             g = np.full(n, st.gain_db + self.fixed_gain_db) if want_db else None
+            if self.trace is not None:
+                self.trace.append(g)
             return u * 10.0 ** ((st.gain_db + self.fixed_gain_db) / 20.0), g
         if mag is None:
             mag = np.abs(u)
@@ -169,12 +173,13 @@ class Agc:
                 g_db[pos:pos + take] = a + (b - a) * frac
             la, lb = 10.0 ** (a / 20.0), 10.0 ** (b / 20.0)
             g_lin[pos:pos + take] = la + (lb - la) * frac
-            st.acc_sum += float(np.sum(mag[pos:pos + take]))
+            st.acc[st.acc_n:st.acc_n + take] = mag[pos:pos + take]
             st.acc_n += take
             pos += take
             if st.acc_n == step:
-                self._update(st.acc_sum / step)
-                st.acc_sum, st.acc_n = 0.0, 0
+                # the same reduction as for whole intervals below: identical for any split
+                self._update(float(st.acc.reshape(1, step).mean(axis=1)[0]))
+                st.acc_n = 0
             # whole intervals in one vectorised pass where possible
             whole = (n - pos) // step
             if whole > 0 and st.acc_n == 0:
@@ -193,4 +198,7 @@ class Agc:
             self.gain_min_db = min(self.gain_min_db, lo_db)
             self.gain_max_db = max(self.gain_max_db, hi_db)
         g_lin *= fixed_lin
-        return u * g_lin, (g_db + self.fixed_gain_db if want_db else None)
+        g_tot = g_db + self.fixed_gain_db if want_db else None
+        if self.trace is not None:
+            self.trace.append(g_tot)
+        return u * g_lin, g_tot
