@@ -90,6 +90,10 @@ def atomic_path(path) -> Iterator[Path]:
     tmp = Path(tmp_name)
     try:
         yield tmp
+        # mkstemp makes the file private (0600); give it the mode any new file gets here
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)
         os.replace(tmp, p)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
