@@ -7,7 +7,12 @@ that drift of the machine's speed hits all of them alike:
 - ``sdrx receive`` fast path (default chain) on the 20 s capture, and on a
   capture six times longer (peak memory must stay flat);
 - ``sdrx receive --path exact`` on the 20 s capture;
-- the plain whole-file pipeline of ``bench/baseline.py``.
+- the plain whole-file pipeline of ``bench/baseline.py``, on the capture and
+  on one half as long.
+
+Steady-state speeds come from two lengths of capture (the extra capture
+seconds over the extra wall time), which leaves out the fixed start-up of a
+process (Python and scipy imports, about a second).
 
 Figures are medians over the runs; ratios are taken run by run, then the
 median. Nothing here is a pass/fail test; the targets are printed beside the
@@ -67,6 +72,9 @@ def make_captures(work: Path, seconds: float, factor: int) -> tuple:
     scen.write_text(SCENARIO.format(seconds=seconds))
     short = work / "short.sigmf-meta"
     subprocess.run(sdrx + ["synth", str(scen), "-o", str(short), "--quiet"], check=True, stdout=subprocess.DEVNULL)
+    half = work / "half.sigmf-meta"
+    subprocess.run(sdrx + ["synth", str(scen), "-o", str(half), "--quiet", "--seconds", str(seconds / 2)],
+                   check=True, stdout=subprocess.DEVNULL)
     # the long capture: the same samples repeated, streamed file to file
     long_meta = work / "long.sigmf-meta"
     shutil.copyfile(short, long_meta)
@@ -79,7 +87,7 @@ def make_captures(work: Path, seconds: float, factor: int) -> tuple:
     meta = json.loads(long_meta.read_text())
     meta["global"].pop("core:sha512", None)
     long_meta.write_text(json.dumps(meta, indent=2))
-    return short, long_meta
+    return short, long_meta, half
 
 
 def main(argv=None) -> int:
@@ -92,14 +100,21 @@ def main(argv=None) -> int:
     work = args.keep or Path(tempfile.mkdtemp(prefix="sdrx-bench-"))
     work.mkdir(parents=True, exist_ok=True)
     try:
+        # byte-compile sdrx first, as any normal first run does (PYTHONDONTWRITEBYTECODE may be set
+        # in some environments, which would otherwise make every run compile sdrx's modules again)
+        import sdrx
+
+        subprocess.run([sys.executable, "-m", "compileall", "-q", str(Path(sdrx.__file__).parent)],
+                       check=True, stdout=subprocess.DEVNULL)
         print(f"synthesizing captures in {work} ...", flush=True)
-        short, long_ = make_captures(work, args.seconds, args.factor)
+        short, long_, half = make_captures(work, args.seconds, args.factor)
         sdrx = [sys.executable, "-m", "sdrx", "receive", "--tune", "1M", "--quiet", "--force"]
         cmds = {
             "fast": sdrx + [str(short), "-o", str(work / "fast.wav")],
             "exact": sdrx + [str(short), "--path", "exact", "-o", str(work / "exact.wav")],
             "baseline": [sys.executable, str(HERE / "baseline.py"), str(short), "1e6", str(work / "base.wav")],
             "fast_long": sdrx + [str(long_), "-o", str(work / "fast_long.wav")],
+            "baseline_half": [sys.executable, str(HERE / "baseline.py"), str(half), "1e6", str(work / "base_half.wav")],
         }
         res = {k: [] for k in cmds}
         timed(cmds["fast"])  # warm-up: page cache, imports
@@ -134,8 +149,11 @@ def main(argv=None) -> int:
         print(f"plain pipeline / fast path (wall, paired):  {ratio_base:6.1f}x   target >= 10x")
         print(f"exact path / fast path (wall, paired):      {ratio_exact:6.1f}x")
         print(f"peak memory, capture x{args.factor} / capture x1:     {mem_ratio:6.2f}    target <= 1.10")
+        base_steady = statistics.median((dur / 2) / (b[0] - h[0]) for b, h in zip(res["baseline"], res["baseline_half"]))
         print(f"fast path steady-state speed:               {steady:6.1f}x real time   target >= 40x "
               f"(fixed start-up per process {startup:.2f} s)")
+        print(f"plain pipeline steady-state speed:          {base_steady:6.1f}x real time")
+        print(f"steady-state speed, fast path / plain:      {steady / base_steady:6.1f}x   target >= 10x")
     finally:
         if args.keep is None:
             shutil.rmtree(work, ignore_errors=True)
