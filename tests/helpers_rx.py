@@ -69,7 +69,8 @@ def complex_noise(rng, power: float, n: int) -> np.ndarray:
 def run_receiver(design, info, tune_hz, x, *, path="fast", hold_db=None, block=None, flush=True, **kw):
     """Run x through a fresh Receiver; return (audio, rx)."""
     rx = Receiver(design, info, tune_hz, path=path, agc_hold_gain_db=hold_db, **kw)
-    x = np.asarray(x, np.complex64)
+    x = np.asarray(x)
+    x = x.astype(np.complex64) if np.iscomplexobj(x) else x.astype(np.float32)   # I/Q or real capture
     if block is None:
         parts = [rx.process(x)]
     else:

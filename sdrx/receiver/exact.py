@@ -106,14 +106,14 @@ class _RfSynthesizer:
             k_in = np.fft.fftfreq(n_s, 1.0 / n_s).astype(int)
             k_out = k_in + self.kc
             f_rf = k_out * df
-            w = passband_window(f_in, 0.45 * fs, 0.5 * fs)
+            w = passband_window(f_in, 0.49 * fs, 0.5 * fs)
         else:
             self.kc = 0
             self.shift_hz = 0.0
             k_in = np.arange(n_s // 2 + 1)
             k_out = k_in
             f_rf = k_in * df
-            w = passband_window(f_rf, 0.45 * fs, 0.5 * fs)
+            w = passband_window(f_rf, 0.49 * fs, 0.5 * fs)
         # no RF below a few kHz: taper to zero at DC
         w = w * np.clip((f_rf - 5e3) / 15e3, 0.0, 1.0)
         ok = (k_out > 0) & (k_out < self.n_o // 2) & (w > 0)
