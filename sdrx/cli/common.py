@@ -12,9 +12,22 @@ from ..progress import make_progress
 __all__ = ["run_cli", "capture_options", "capture_kwargs", "progress_for", "fail"]
 
 
+def _terminate(signum, frame):
+    raise KeyboardInterrupt
+
+
 def run_cli(group, argv=None):
-    """Run the click group; map SdrxError (and a few OS errors) to exit 2."""
+    """Run the click group; map SdrxError (and a few OS errors) to exit 2.
+
+    SIGTERM is handled like Ctrl-C, so that writers remove their temporary
+    files on the way out.
+    """
     debug = "--debug" in (argv if argv is not None else sys.argv[1:])
+    import signal
+    import threading
+
+    if threading.current_thread() is threading.main_thread():
+        signal.signal(signal.SIGTERM, _terminate)
     try:
         rv = group.main(args=argv, prog_name="sdrx", standalone_mode=False)
     except click.exceptions.Exit as exc:
