@@ -15,6 +15,7 @@ from typing import Tuple
 import numpy as np
 from scipy import signal
 
+from ..dsp.discretize import zpk_eval
 from ..errors import ParameterError
 from .spec import ChainSpec, IfStageSpec, PreselectorSpec, MixerSpec, load_chain
 
@@ -34,14 +35,7 @@ TWO_PI = 2.0 * math.pi
 
 def _freqs_zpk(z, p, k, f_hz):
     f = np.atleast_1d(np.asarray(f_hz, dtype=float))
-    s = 1j * TWO_PI * f
-    num = np.ones_like(s) * k
-    for zz in z:
-        num = num * (s - zz)
-    den = np.ones_like(s)
-    for pp in p:
-        den = den * (s - pp)
-    return num / den
+    return zpk_eval(1j * TWO_PI * f, z, p, k)
 
 
 def single_tuned_zpk(f0_hz: float, q: float):

@@ -15,9 +15,27 @@ import math
 
 import numpy as np
 
-__all__ = ["matched_z", "zpk_to_complex_sos", "split_near_far", "digital_response", "lowpass_equivalent"]
+__all__ = ["zpk_eval", "matched_z", "zpk_to_complex_sos", "split_near_far", "digital_response", "lowpass_equivalent"]
 
 TWO_PI = 2.0 * math.pi
+
+
+def zpk_eval(x, z, p, k):
+    """k·Π(x − z)/Π(x − p) at the points x (s = j2πf for an analog filter, e^{jωT} for a digital one).
+
+    Examples
+    --------
+    >>> complex(zpk_eval(2j, [0.0], [-1.0], 3.0)[0])
+    (2.4+1.2j)
+    """
+    x = np.atleast_1d(np.asarray(x, dtype=complex))
+    num = np.full(x.shape, complex(k))
+    for zz in z:
+        num = num * (x - zz)
+    den = np.ones_like(x)
+    for pp in p:
+        den = den * (x - pp)
+    return num / den
 
 
 def matched_z(z, p, k, fs: float, f_match_hz: float):
@@ -65,14 +83,7 @@ def matched_z(z, p, k, fs: float, f_match_hz: float):
 def digital_response(zd, pd, kd, f_hz, fs: float):
     """Response of a digital (z, p, k) at frequencies ``f_hz`` (Hz, may be negative)."""
     f = np.atleast_1d(np.asarray(f_hz, dtype=float))
-    e = np.exp(1j * TWO_PI * f / fs)
-    num = np.full(e.shape, complex(kd))
-    for zz in zd:
-        num = num * (e - zz)
-    den = np.ones_like(e)
-    for pp in pd:
-        den = den * (e - pp)
-    return num / den
+    return zpk_eval(np.exp(1j * TWO_PI * f / fs), zd, pd, kd)
 
 
 def zpk_to_complex_sos(zd, pd, kd) -> np.ndarray:
