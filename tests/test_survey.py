@@ -123,6 +123,30 @@ def test_no_phantoms_in_a_short_excerpt(seed, tmp_path):
     assert res.carriers == ()
 
 
+def test_sidebands_of_off_grid_carriers_are_not_carriers(tmp_path, rng):
+    # A Region 2 band (10 kHz grid) surveyed on the 9 kHz grid of Regions 1 and 3.
+    # source: ITU Radio Regulations / Geneva 1975 (9 kHz) and Rio de Janeiro 1981 (10 kHz) plans
+    # 880 and 1510 kHz lie 2 kHz from the 9 kHz channels 882 and 1512 (within a quarter spacing: found,
+    # with their offset); 600, 1130 and 1140 kHz lie 3-4 kHz off, and each has a sideband line inside
+    # the window of the 9 kHz channel next to it (601, 1132, 1141 kHz) that must not be listed.
+    fs, center, seconds = 1.2e6, 1.0e6, 0.5
+    n = int(fs * seconds)
+    t = np.arange(n) / fs
+    stations = [(600e3, -20.0, 1e3), (880e3, -26.0, 1e3), (1130e3, -12.0, 2e3), (1140e3, -30.0, 1e3),
+                (1510e3, -16.0, 1e3)]
+    x = complex_noise(n, -80, rng)
+    for f, level_dbfs, tone_hz in stations:
+        # 50 % tone modulation: each sideband 20 log10(m/2) = -12 dBc (communication-systems texts)
+        env = 10 ** (level_dbfs / 20) * (1 + 0.5 * np.cos(2 * np.pi * tone_hz * t))
+        x = x + env * np.exp(2j * np.pi * (f - center) * t)
+    r = write_iq(tmp_path / "r2.sigmf-meta", x, fs, center)
+    res = survey(r, spacing_hz="9k")
+    assert [c.freq_hz for c in res.carriers] == [1512e3, 882e3]
+    for c, true_hz, level in zip(res.carriers, (1510e3, 880e3), (-16.0, -26.0)):
+        assert c.freq_hz + c.offset_hz == pytest.approx(true_hz, abs=res.rbw_hz)
+        assert c.level_dbfs == pytest.approx(level, abs=1.0)
+
+
 def test_threshold_separates_weak_from_clear(tmp_path, rng):
     fs, n, center = 1.2e6, 600_000, 1e6
     t = np.arange(n) / fs

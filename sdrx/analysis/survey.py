@@ -3,8 +3,9 @@
 A long-averaged power spectrum of the excerpt (Hann-windowed segments, averaged
 over the whole excerpt, streamed in blocks) is searched around every channel of
 the grid (multiples of the channel spacing inside the capture's band). A channel
-holds a carrier when its strongest bin stands above the noise floor by the
-detection threshold.
+holds a carrier when its strongest bin lies within a quarter of a spacing of the
+channel, is the strongest bin of the whole channel (half a spacing either side)
+and stands above the noise floor by the detection threshold.
 """
 
 from __future__ import annotations
@@ -224,6 +225,14 @@ def _find(power, freqs, rbw, spacing, noise, thr_ratio) -> list:
         if k in (a, b) or power[k] < thr_ratio * noise:
             continue
         if power[k] < np.max(power[max(0, k - _GUARD): k + _GUARD + 1]):
+            continue
+        # a carrier is the strongest line of its whole channel (half a spacing either side); a
+        # weaker line there is a sideband of a carrier that sits off this grid (a 10 kHz band
+        # surveyed on a 9 kHz grid), not a carrier of its own. Carriers of neighbouring channels
+        # lie at least 3/4 of a spacing away, outside this span.
+        c_lo = max(0, int(math.ceil((fc - spacing / 2.0 - f0) / rbw)))
+        c_hi = min(n - 1, int(math.floor((fc + spacing / 2.0 - f0) / rbw)))
+        if power[k] < np.max(power[c_lo : c_hi + 1]):
             continue
         lobe = power[k - _LOBE : k + _LOBE + 1]
         line = float(np.sum(lobe)) - lobe.size * noise
