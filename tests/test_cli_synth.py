@@ -221,6 +221,26 @@ def test_wav_program_path_is_relative_to_the_scenario(tmp_path, capsys):
     assert rc == 2 and "is one of the inputs" in err
 
 
+@pytest.mark.parametrize("normalize", ["true", "false"])
+def test_wav_program_with_a_nan_names_the_file_and_frame(tmp_path, capsys, normalize):
+    # normalize = false: the NaN is met while the capture is being written, not while the
+    # scenario is read; either way one line naming the WAV and the frame, and nothing left behind
+    sub = tmp_path / "scn"
+    sub.mkdir()
+    x = np.zeros(8000, dtype=np.float32)
+    x[1234] = np.nan
+    sf.write(sub / "voice.wav", x, 8000, subtype="FLOAT")
+    p = sub / "w.toml"
+    p.write_text(SCENARIO.replace('kind = "speech"', f'kind = "wav"\npath = "voice.wav"\nnormalize = {normalize}'))
+    out = tmp_path / "out"
+    out.mkdir()
+    rc, stdout, err = run(["synth", p, "-o", out / "w.sigmf-meta", "--quiet"], capsys)
+    assert rc == 2 and stdout == "" and err.count("\n") == 1 and "Traceback" not in err
+    assert err.startswith("sdrx: error: ")
+    assert f"voice.wav: frame 1234 is not finite" in err, err
+    assert list(out.iterdir()) == []
+
+
 def _peak_bytes(scenario, out, seconds):
     tracemalloc.start()
     try:

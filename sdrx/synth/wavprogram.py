@@ -66,6 +66,12 @@ class WavSource(ProgramSource):
     loop : bool
         Start again from the beginning at the end of the file (else silence).
 
+    Raises
+    ------
+    ParameterError
+        The file cannot be read, holds no samples, or (when reached) holds a
+        NaN or infinite sample, named by its frame.
+
     Notes
     -----
     Output sample k sits at file position x = k·fw/fs; its value is
@@ -76,6 +82,7 @@ class WavSource(ProgramSource):
 
     def __init__(self, fs, path, bandwidth, loop):
         super().__init__(fs)
+        self._path = path
         try:
             self._file = sf.SoundFile(path)
         except (RuntimeError, sf.LibsndfileError) as exc:
@@ -108,6 +115,11 @@ class WavSource(ProgramSource):
             take = min(hi - i, self._frames - frame)
             self._file.seek(frame)
             data = self._file.read(take, dtype="float64", always_2d=True)
+            bad = np.flatnonzero(~np.isfinite(data).all(axis=1))
+            if bad.size:
+                raise ParameterError(
+                    f"program (wav): {self._path}: frame {frame + int(bad[0])} is not finite (NaN or infinite)"
+                )
             out[i - lo:i - lo + data.shape[0]] = data.mean(axis=1)
             i += take
         return out
