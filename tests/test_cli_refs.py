@@ -119,6 +119,19 @@ def test_store_that_is_not_one(folder, capsys):
     assert tree(folder) == before
 
 
+def test_bad_later_case_stops_record_before_any_case_runs(folder, capsys):
+    # the tuning is checked against the capture's band when the cases are checked, not when
+    # the second case runs: the first case's reference must not have been written by then
+    good = CASE.format(name="bench", capture="captures/bench.sigmf-meta", tune=f"{TUNE / 1e3:g}k")
+    far = CASE.format(name="far", capture="captures/bench.sigmf-meta", tune="5M")
+    (folder / "cases.toml").write_text(good + far)
+    before = tree(folder)
+    code, out, err = run(["refs", "record", *cli_args(folder)], capsys)
+    one_line_error(code, err, "case 'far': --tune 5 MHz: outside the capture's band")
+    assert out == ""
+    assert tree(folder) == before and not (folder / "store").exists()
+
+
 def test_verify_missing_store(folder, capsys):
     before = tree(folder)
     code, out, err = run(["refs", "verify", *cli_args(folder)], capsys)

@@ -36,7 +36,9 @@ def prepare_case(case: Case) -> Prepared:
     """Check a case fully before anything is run or written.
 
     Opens the capture (validating its metadata and the excerpt), loads and
-    designs the chain.
+    designs the chain, and binds the design to the capture as the run will
+    (tuning inside the capture's band, path), so that a bad later case
+    stops the command before an earlier case is run or written.
 
     Raises
     ------
@@ -46,15 +48,18 @@ def prepare_case(case: Case) -> Prepared:
     from ..capture import open_capture
     from ..chain import design_chain, load_chain, spec_to_dict
 
+    from ..receiver import Receiver
+
     try:
         reader = open_capture(case.capture, **case.capture_kwargs())
-        reader.sample_range(case.start_s, case.duration_s)
+        first, _count = reader.sample_range(case.start_s, case.duration_s)
         info = reader.info
     except (CaptureError, ParameterError) as exc:
         raise type(exc)(f"case {case.name!r}: {exc}") from None
     try:
         spec = load_chain(case.chain)
         design = design_chain(spec)
+        Receiver(design, info, case.tune_hz, path=case.path, first_sample=first)
     except (CaptureError, ParameterError) as exc:
         raise type(exc)(f"case {case.name!r}: {exc}") from None
     return Prepared(case=case, info=info, chain_name=str(design.name), chain_spec=clean_json(spec_to_dict(spec)))
