@@ -115,6 +115,17 @@ def test_user_text_is_escaped(tmp_path):
     assert "<b>&x</b>" not in page and "&lt;b&gt;&amp;x&lt;/b&gt;" in page
 
 
+def test_dollar_signs_in_the_chain_name_print_as_text(tmp_path):
+    # matplotlib would parse "$...$" in a title as mathtext and fail on "\frac{" (a traceback, exit 1)
+    name = r"cost $\frac{$ x"
+    rep = build_report({"name": name, "preselector": {"kind": "none"}}, TUNE, measure=False)
+    assert rep.data["chain"] == name
+    for png in rep.figures.values():
+        assert png[:8] == b"\x89PNG\r\n\x1a\n"
+    write_report(rep, tmp_path / "r")
+    assert name in (tmp_path / "r" / "report.html").read_text()
+
+
 def test_byte_identical_outputs(tmp_path):
     a = build_report("narrow", 1130e3, measure=False)
     b = build_report("narrow", 1130e3, measure=False)

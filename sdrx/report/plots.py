@@ -46,6 +46,8 @@ _RC = {
     "axes.grid": True,
     "grid.alpha": 0.3,
     "axes.prop_cycle": None,  # filled in _figure
+    # titles carry user text (the chain's name): a "$" must print as itself, not start mathtext
+    "text.parse_math": False,
 }
 _DPI = 100
 _SIZE = (8.0, 4.6)
