@@ -122,8 +122,12 @@ def selectivity_png(designed, measured, spacing_hz, rejections, *, title="", flo
             continue
         y = max(-float(rej), floor_db)
         ax.plot([x], [y], marker="v", ms=8, color=OKABE_ITO["green"], ls="none")
-        ax.annotate(f"{-rej:.1f} dB", (x, y), textcoords="offset points", xytext=(0, 9), ha="center",
-                    fontsize=8, color=OKABE_ITO["green"])
+        # label on the outer side of the mark, where the curve lies below it (centred, the rising
+        # skirt towards the tune would run through the text)
+        out = 1 if x > 0 else -1
+        ax.annotate(f"{-rej:.1f} dB", (x, y), textcoords="offset points", xytext=(7 * out, 7),
+                    ha="left" if out > 0 else "right", fontsize=8, color=OKABE_ITO["green"],
+                    bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.85})
     ax.plot([], [], marker="v", ls="none", color=OKABE_ITO["green"], label="±1, ±2 channels (designed)")
     ax.set_xlim(-span / 1e3, span / 1e3)
     ax.set_ylim(floor_db, 8)
