@@ -48,6 +48,10 @@ def test_comparison(capsys):
     (["--if", "1M", "--band", "540k:1700k"], "--if 1 MHz: inside the band"),
     (["--if", "455k", "--band", "540k:1700k", "--reject", "40"], "--reject needs --at"),
     (["--if", "455k", "--band", "540k:1700k", "--reject", "40", "--at", "3M"], "--at 3 MHz: offset is beyond the band"),
+    (["--if", "455k", "--band", "540k:1700k", "--at", "10k"], "--at needs --reject"),
+    (["--if", "455k", "--band", "540k:1700k", "--reject", "40", "--at", "10k", "--max-q", "0"], "--max-q 0.0"),
+    (["--if", "455k", "--band", "540k:1700k", "--reject", "40", "--at", "10k", "--max-q", "-5"], "--max-q -5.0"),
+    (["--if", "455k", "--band", "540k:1700k", "--reject", "40", "--at", "10k", "--max-q", "nan"], "--max-q nan"),
 ])
 def test_bad_input_one_line_exit_2(args, match, capsys):
     rc, out, err = run(["plan", *args], capsys)
@@ -55,3 +59,9 @@ def test_bad_input_one_line_exit_2(args, match, capsys):
     assert out == ""
     lines = err.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("sdrx: error: ") and match in lines[0]
+
+
+def test_help_has_an_unwrapped_example(capsys):
+    rc, out, err = run(["plan", "--help"], capsys)
+    assert rc == 0
+    assert "    sdrx plan --if 455k --band 540k:1700k --spacing 10k --reject 40 --at 10k\n" in out

@@ -380,7 +380,7 @@ def q_requirements(reject_db, offset_hz, if_hz, band_hz, *, practical_q=PRACTICA
     Raises
     ------
     ParameterError
-        Bad rejection or offset.
+        Bad rejection or offset, or a practical Q that is not above 0.
 
     Notes
     -----
@@ -393,6 +393,9 @@ def q_requirements(reject_db, offset_hz, if_hz, band_hz, *, practical_q=PRACTICA
     >>> round(t.rows[0].q_loaded, 1)   # one single-tuned circuit at the IF
     253.9
     """
+    pq = float(practical_q)
+    if not math.isfinite(pq) or pq <= 0:
+        raise ParameterError(f"--max-q {practical_q!r}: the practical loaded Q must be a number above 0 (e.g. 200)")
     r = parse_db(reject_db, "--reject")
     if r <= 0:
         raise ParameterError(f"--reject {reject_db!r}: the rejection must be above 0 dB")
@@ -412,8 +415,8 @@ def q_requirements(reject_db, offset_hz, if_hz, band_hz, *, practical_q=PRACTICA
         for kind, counts in (("single", SINGLE_STAGES), ("double", DOUBLE_STAGES)):
             for n in counts:
                 q = qfactor.q_for_rejection(f0, d, r, n, kind)
-                rows.append(QRequirement(where, f0, kind, n, q, q <= practical_q))
-    return QTable(r, d, float(practical_q), tuple(rows))
+                rows.append(QRequirement(where, f0, kind, n, q, q <= pq))
+    return QTable(r, d, pq, tuple(rows))
 
 
 def frequency_plan(if_hz, band_hz, spacing_hz=10e3, injection="high", *, reject_db=None,
