@@ -31,6 +31,10 @@ def test_designed_only_writes_folder(tmp_path, capsys):
     (["medium", "--tune", "1M", "--spacing", "500k"], "--spacing 500 kHz: must be above 0"),
     (["medium", "--tune", "1M", "--points", "3"], "--points 3"),
     (["no-such-preset", "--tune", "1M"], "no-such-preset"),
+    # capture options without --capture would be silently ignored
+    (["medium", "--tune", "1M", "--start", "1"], "--start 1: only applies with --capture"),
+    (["medium", "--tune", "1M", "--duration", "2"], "--duration 2: only applies with --capture"),
+    (["medium", "--tune", "1M", "--center", "1M"], "--center 1M: only applies with --capture"),
 ])
 def test_bad_input_one_line_exit_2_nothing_written(args, match, tmp_path, capsys):
     out = tmp_path / "rep"
@@ -64,3 +68,9 @@ def test_tune_outside_capture(tmp_path, capsys):
                        "-o", str(out)], capsys)
     assert rc == 2 and "outside the band of capture" in err and len(err.strip().splitlines()) == 1
     assert not out.exists()
+
+
+def test_help_has_an_unwrapped_example(capsys):
+    rc, out, err = run(["report", "--help"], capsys)
+    assert rc == 0
+    assert "    sdrx report medium --tune 1130k -o demo_out/report\n" in out

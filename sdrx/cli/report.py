@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import click
 
+from ..errors import ParameterError
 from .common import capture_kwargs, capture_options, progress_for
 
 __all__ = ["command"]
@@ -40,6 +41,15 @@ def command(chain, tune, capture, spacing, path, points, no_measure, out_dir, fo
     from ..report.build import build_report, report_files, write_report
     from ..units import parse_seconds
     from pathlib import Path
+
+    if capture is None:
+        # these options describe the capture; without one they would be silently ignored
+        for name, value in (("--format", datatype), ("--rate", rate), ("--center", center),
+                            ("--duration", duration)):
+            if value is not None:
+                raise ParameterError(f"{name} {value}: only applies with --capture CAPTURE")
+        if parse_seconds(start, "--start") != 0:
+            raise ParameterError(f"--start {start}: only applies with --capture CAPTURE")
 
     # refuse an existing output before any work
     d = Path(out_dir)
