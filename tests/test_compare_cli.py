@@ -183,3 +183,10 @@ def test_seed_without_blind_is_not_ignored(capture, tmp_path, capsys):
     out = tmp_path / "cmp"
     _bad(capsys, ["compare", str(capture), "--tune", "1M", "wide", "narrow", "-o", str(out), "--seed", "4"],
          "--seed 4: only draws the blind trials; add --blind N", out)
+
+
+def test_help_has_an_unwrapped_example(capsys):
+    rc, out, err = run(["compare", "--help"], capsys)
+    assert rc == 0
+    assert ("    sdrx compare demo_signals/coast.sigmf-meta --tune 1130k wide narrow -o demo_out/compare "
+            "--blind 10\n") in out

@@ -32,14 +32,17 @@ def command(capture, specs, tune, out_dir, blind, seed, spacing, path, force, qu
 
     Example:
 
+    \b
         sdrx compare demo_signals/coast.sigmf-meta --tune 1130k wide narrow -o demo_out/compare --blind 10
 
     Each SPEC is a preset name or a chain TOML file, optionally with a label:
     SPEC@LABEL (e.g. medium@medium-again to compare a chain with itself).
     Writes DIR/LABEL.wav per spec, DIR/compare.json, DIR/index.html (open it
     in a browser; it plays the WAVs beside it) and, with --blind,
-    DIR/blind-key.json. The excerpt is --start/--duration, by default the first
-    30 s (at most 120 s).
+    DIR/blind-key.json. The excerpt is --start/--duration, by default the rest
+    of the capture from --start, at most 30 s (1 to 120 s allowed). Each
+    receiver runs 0.2 s ahead of the excerpt to settle (from --start 0, the
+    first 0.2 s is not heard).
     """
     from ..compare.run import compare
 
