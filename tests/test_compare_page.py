@@ -203,3 +203,22 @@ def test_rerun_is_byte_identical(tmp_path):
     b, _ = make(tmp_path, np.random.default_rng(1), blind=4, seed=9, out_name="b")
     for name in ("wide.wav", "medium.wav", "narrow.wav", "compare.json", "index.html", "blind-key.json"):
         assert (a / name).read_bytes() == (b / name).read_bytes(), name
+
+
+def test_selectivity_plot_colour_blind_safe_and_literal_labels():
+    import io
+
+    import matplotlib.image
+
+    from sdrx.compare.plot import COLOURS, STYLES, selectivity_png
+
+    off = np.linspace(-30e3, 30e3, 601)
+    curves = [(r"a $\frac{$ b", off, -np.abs(off) / 500), ("two", off, -np.abs(off) / 300),
+              ("three", off, -np.abs(off) / 200)]
+    png = selectivity_png(curves, tune_hz=1e6, spacing_hz=10e3)  # "$...$" would be mathtext and fail
+    img = matplotlib.image.imread(io.BytesIO(png), format="png")[..., :3]
+    for hexcol in COLOURS[:3]:
+        rgb = np.array([int(hexcol[i:i + 2], 16) / 255 for i in (1, 3, 5)])
+        # source: Okabe & Ito (2008) colour-universal palette; each curve is drawn in its colour
+        assert (np.abs(img - rgb).max(axis=-1) < 0.02).sum() > 50, hexcol
+    assert len(set(map(str, STYLES[:3]))) == 3

@@ -6,7 +6,12 @@ import io
 
 import numpy as np
 
-__all__ = ["selectivity_png"]
+__all__ = ["COLOURS", "STYLES", "selectivity_png"]
+
+#: Okabe & Ito (2008) colour-universal palette (told apart with the common forms of colour blindness)
+COLOURS = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
+#: line styles as well, so that coinciding or similar-coloured curves stay apart
+STYLES = ("-", "--", "-.", ":", (0, (5, 1, 1, 1)), (0, (3, 1, 1, 1, 1, 1)), (0, (1, 1)))
 
 
 def selectivity_png(curves, *, tune_hz: float, spacing_hz: float | None = None,
@@ -46,10 +51,12 @@ def selectivity_png(curves, *, tune_hz: float, spacing_hz: float | None = None,
 
     fig = Figure(figsize=(8, 4.2), dpi=100)
     ax = fig.add_subplot(1, 1, 1)
-    for label, off, db in curves:
+    for i, (label, off, db) in enumerate(curves):
         off = np.asarray(off, dtype=float)
         keep = np.abs(off) <= span_hz
-        ax.plot(off[keep] / 1e3, np.maximum(np.asarray(db, dtype=float)[keep], floor_db - 10), label=str(label))
+        # labels are user text: parse_math off so that a "$" is not taken for mathtext
+        ax.plot(off[keep] / 1e3, np.maximum(np.asarray(db, dtype=float)[keep], floor_db - 10), label=str(label),
+                color=COLOURS[i % len(COLOURS)], linestyle=STYLES[i % len(STYLES)], linewidth=1.6)
     if spacing_hz:
         for s in (-spacing_hz, spacing_hz):
             ax.axvline(s / 1e3, color="0.5", linestyle=":", linewidth=1)
@@ -61,7 +68,9 @@ def selectivity_png(curves, *, tune_hz: float, spacing_hz: float | None = None,
     ax.set_ylabel("response re tune, dB")
     ax.set_title("Selectivity (designed, AGC off)")
     ax.grid(True, alpha=0.3)
-    ax.legend(loc="lower center", fontsize=8)
+    leg = ax.legend(loc="lower center", fontsize=8)
+    for t in leg.get_texts():
+        t.set_parse_math(False)
     fig.tight_layout()
     buf = io.BytesIO()
     fig.savefig(buf, format="png", metadata={"Software": None})
