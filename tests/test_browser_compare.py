@@ -87,8 +87,18 @@ def run_page_checks(page, folder, key, second_label):
     st = _wait(page, lambda st: st[1]["t"] > t_switch + 0.2, what="B advancing")
     assert page.inner_text("#now") == f"Now playing: {second_label}"
 
-    # blind trial 1: listen to X, it plays from the same position, answer right; trial 2 answer wrong
+    # blind trial 1: listen to X, it plays from the same position, answer right; trial 2 answer wrong.
+    # Every trial button seeks, even to the output heard already: otherwise a switch to X would be
+    # seamless exactly when X is the output playing, and the listener could tell by the (missing) gap.
+    page.evaluate("() => { window.sdrxSeeks = 0; document.querySelectorAll('audio.sdrx-audio')"
+                  ".forEach(a => a.addEventListener('seeking', () => { window.sdrxSeeks += 1; })); }")
+    page.click("#play-0-A")
+    page.click("#play-0-A")
     page.click("#play-0-X")
+    t0 = time.monotonic()
+    while page.evaluate("() => window.sdrxSeeks") < 3 and time.monotonic() - t0 < 5:
+        page.wait_for_timeout(50)
+    assert page.evaluate("() => window.sdrxSeeks") == 3
     st = _state(page)
     heard = [i for i, a in enumerate(st) if not a["paused"]]
     assert len(heard) == 1

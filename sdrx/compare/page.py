@@ -102,8 +102,10 @@ _JS = r"""
     playBtn.textContent = a.paused ? "Play" : "Pause";
   }
   // Hear output i from the position of the one heard now, playing if it was playing.
-  function switchTo(i) {
-    if (i === active) { return; }
+  // always: go through the same pause and seek even when i is heard already, so that in a blind
+  // trial the switch to X sounds alike whether X is the output playing or the other one.
+  function switchTo(i, always) {
+    if (i === active && !always) { return; }
     var from = audios[active], to = audios[i];
     var t = from.currentTime, playing = !from.paused;
     from.pause();
@@ -182,7 +184,7 @@ _JS = r"""
         var t = Number(b.dataset.trial), role = b.dataset.role, tr = blind.trials[t];
         var which = role === "X" ? decodedKey()[t] : role;
         var idx = which === "A" ? tr.a_index : tr.b_index;
-        switchTo(idx);
+        switchTo(idx, true);
         markSources(-1);
         markTrialButtons(b);
         nowEl.textContent = "Now playing: trial " + (t + 1) + ", " + role;
