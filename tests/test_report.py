@@ -106,6 +106,10 @@ def test_html_embeds_figures_and_numbers_equal_json(report, tmp_path):
     for k in ("designed.bandwidth_hz.60", "measured.bandwidth_hz.6", "measured.difference.image_rejection_db",
               "designed.q.equivalent_if", "designed.q.stages.2.loaded_q"):
         assert k in keys
+    # the "loaded Q" of a filter stage is f0/BW of the stage, and the page says so
+    assert data["designed"]["q"]["stages"][1]["response"] == "butterworth"
+    assert data["designed"]["q"]["stages"][1]["loaded_q"] == pytest.approx(455e3 / 9e3, abs=0.01)
+    assert "f0/BW, not the Q of the resonators" in (tmp_path / "rep" / "report.html").read_text()
 
 
 def test_user_text_is_escaped(tmp_path):

@@ -99,7 +99,10 @@ def _q_tables(data):
         rows.append("<tr><td>%s</td><td>%s</td>%s%s%s%s</tr>" % (
             _e(s["stage"]), _e(s["response"]), _num(data, base + "order"), _num(data, base + "f0_hz"),
             _num(data, base + "bandwidth_hz"), _num(data, base + "loaded_q")))
-    t1 = "<table>" + "".join(rows) + "</table>"
+    t1 = ("<table>" + "".join(rows) + "</table>"
+          '<p class="note" id="q-note">Loaded Q: of the circuit for single-tuned and double-tuned stages (and the '
+          "preselector); for filter stages (butterworth, chebyshev, elliptic, bessel) the stage's centre over its "
+          "design bandwidth, f0/BW, not the Q of the resonators that would build it.</p>")
     rows = ["<tr><th></th><th>at RF (the tune)</th><th>at the IF</th></tr>",
             _row("equivalent Q, exact (one single-tuned circuit)",
                  [_num(data, "designed.q.equivalent_rf"), _num(data, "designed.q.equivalent_if")]),
@@ -108,7 +111,7 @@ def _q_tables(data):
                                        _num(data, "designed.q.shortcut_if_error_pct")])]
     t2 = "<table>" + "".join(rows) + "</table>"
     note = ('<p class="note">Rejection x = <span data-key="designed.q.rejection_db">%s</span> dB at '
-            '<span data-key="designed.q.offset_hz">%s</span> Hz (the smaller of the two sides). %s</p>'
+            '<span data-key="designed.q.offset_hz">%s</span> Hz (the smaller of the two sides). Method: %s.</p>'
             % (_e(q["rejection_db"]), _e(q["offset_hz"]), _e(q["method"])))
     return t1 + t2 + note
 
