@@ -93,7 +93,7 @@ def _selectivity_table(data):
 def _q_tables(data):
     q = data["designed"]["q"]
     rows = ["<tr><th>stage</th><th>response</th><th>order</th><th>centre, Hz</th>"
-            "<th>bandwidth (-3 dB), Hz</th><th>loaded Q</th></tr>"]
+            "<th>design bandwidth, Hz</th><th>loaded Q</th></tr>"]
     for i, s in enumerate(q["stages"]):
         base = f"designed.q.stages.{i}."
         rows.append("<tr><td>%s</td><td>%s</td>%s%s%s%s</tr>" % (
@@ -102,7 +102,8 @@ def _q_tables(data):
     t1 = ("<table>" + "".join(rows) + "</table>"
           '<p class="note" id="q-note">Loaded Q: of the circuit for single-tuned and double-tuned stages (and the '
           "preselector); for filter stages (butterworth, chebyshev, elliptic, bessel) the stage's centre over its "
-          "design bandwidth, f0/BW, not the Q of the resonators that would build it.</p>")
+          "design bandwidth, f0/BW, not the Q of the resonators that would build it. Design bandwidth: the "
+          "-3 dB full width; for chebyshev and elliptic stages the ripple band.</p>")
     rows = ["<tr><th></th><th>at RF (the tune)</th><th>at the IF</th></tr>",
             _row("equivalent Q, exact (one single-tuned circuit)",
                  [_num(data, "designed.q.equivalent_rf"), _num(data, "designed.q.equivalent_if")]),
