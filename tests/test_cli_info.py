@@ -8,16 +8,12 @@ import pytest
 import soundfile
 
 from sdrx.capture import open_writer
-from sdrx.cli import main
 
+import sys as _sys
+from pathlib import Path as _Path
 
-def run(args, capsys):
-    try:
-        rc = main(args)
-    except SystemExit as exc:
-        rc = exc.code
-    out, err = capsys.readouterr()
-    return rc, out, err
+_sys.path.insert(0, str(_Path(__file__).parent))  # tests/helpers_cli.py (pytest importlib mode)
+from helpers_cli import run  # noqa: E402
 
 
 @pytest.fixture

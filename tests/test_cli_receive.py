@@ -12,22 +12,13 @@ import pytest
 import soundfile as sf
 
 from sdrx.capture import open_writer
-from sdrx.cli import main
 
-sys.path.insert(0, str(Path(__file__).parent))  # tests/helpers_rx.py (pytest importlib mode)
+sys.path.insert(0, str(Path(__file__).parent))  # tests/helpers_*.py (pytest importlib mode)
+from helpers_cli import run  # noqa: E402
 from helpers_rx import am_station, complex_noise  # noqa: E402
 
 FS = 240e3
 CENTER = 1.0e6
-
-
-def run(argv, capsys):
-    try:
-        rc = main([str(a) for a in argv])
-    except SystemExit as exc:
-        rc = exc.code
-    out = capsys.readouterr()
-    return rc, out.out, out.err
 
 
 @pytest.fixture

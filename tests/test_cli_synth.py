@@ -13,8 +13,13 @@ import pytest
 import soundfile as sf
 
 from sdrx.capture import open_capture
-from sdrx.cli import main
 from sdrx.synth import synthesize
+
+import sys as _sys
+from pathlib import Path as _Path
+
+_sys.path.insert(0, str(_Path(__file__).parent))  # tests/helpers_cli.py (pytest importlib mode)
+from helpers_cli import run  # noqa: E402
 
 DEMO = Path(__file__).resolve().parent.parent / "demo_signals"
 
@@ -50,15 +55,6 @@ model = "rician"
 rate = 2
 k_db = 6
 '''
-
-
-def run(argv, capsys):
-    try:
-        rc = main([str(a) for a in argv])
-    except SystemExit as exc:
-        rc = exc.code
-    out = capsys.readouterr()
-    return rc, out.out, out.err
 
 
 @pytest.fixture
