@@ -28,7 +28,8 @@ browser:
 	@command -v chromium >/dev/null 2>&1 || { \
 	  echo "installing Debian chromium for the browser test"; \
 	  SUDO=$$( [ "$$(id -u)" = 0 ] || echo sudo ); \
-	  $$SUDO apt-get update -qq && $$SUDO apt-get install -y -qq chromium chromium-driver >/dev/null; }
+	  $$SUDO env DEBIAN_FRONTEND=noninteractive apt-get update -qq && \
+	  $$SUDO env DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium chromium-driver >/dev/null; }
 
 clean:
 	rm -rf $(VENV) build *.egg-info demo_out
