@@ -318,7 +318,11 @@ def q_summary(design, tune_hz, spacing_hz, figures):
     Returns
     -------
     dict
-        ``stages`` (list of dicts), ``rejection_db`` (the smaller of the two
+        ``stages`` (list of dicts: response, order, centre, design bandwidth,
+        ``loaded_q``, and for Butterworth/Chebyshev stages the external Q of
+        the end resonators of a coupled-resonator realisation,
+        ``end_resonator_q_in``/``end_resonator_q_out``, see
+        :mod:`sdrx.chain.ladder`), ``rejection_db`` (the smaller of the two
         rejections at ±1 spacing), ``equivalent_rf``/``equivalent_if`` (exact
         universal resonance curve: the Q of ONE single-tuned circuit at the
         tune / at the IF rejecting ``spacing`` by that much, on the worse,
@@ -333,10 +337,14 @@ def q_summary(design, tune_hz, spacing_hz, figures):
     pre = design.preselector
     if pre.kind == "tracking":
         stages.append({"stage": "preselector", "response": "single_tuned", "order": 1, "f0_hz": tune_hz,
-                       "bandwidth_hz": tune_hz / pre.q, "loaded_q": pre.q})
+                       "bandwidth_hz": tune_hz / pre.q, "loaded_q": pre.q,
+                       "end_resonator_q_in": None, "end_resonator_q_out": None})
     for i, st in enumerate(design.stages, 1):
+        ends = st.end_resonator_q
         stages.append({"stage": f"IF {i}", "response": st.response, "order": st.order, "f0_hz": st.f0_hz,
-                       "bandwidth_hz": st.bandwidth_hz, "loaded_q": st.loaded_q})
+                       "bandwidth_hz": st.bandwidth_hz, "loaded_q": st.loaded_q,
+                       "end_resonator_q_in": None if ends is None else ends[0],
+                       "end_resonator_q_out": None if ends is None else ends[1]})
     adj = figures.adjacent_rejection_db
     x = min(adj[_key(-spacing_hz)], adj[_key(spacing_hz)])
     out = {"stages": stages, "rejection_db": x, "offset_hz": spacing_hz}

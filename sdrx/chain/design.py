@@ -17,6 +17,7 @@ from scipy import signal
 
 from ..dsp.discretize import zpk_eval
 from ..errors import ParameterError
+from .ladder import end_resonator_q
 from .spec import ChainSpec, IfStageSpec, PreselectorSpec, MixerSpec, load_chain
 
 __all__ = [
@@ -109,6 +110,7 @@ class IfStageDesign:
     z: np.ndarray
     p: np.ndarray
     k: float
+    ripple_db: float = 0.0
 
     def freq_response(self, f_hz):
         """Analog response at real IF frequencies (gain_db not included)."""
@@ -118,6 +120,16 @@ class IfStageDesign:
     def zpk(self):
         """(z, p, k) of the analog prototype, rad/s."""
         return self.z, self.p, self.k
+
+    @property
+    def end_resonator_q(self):
+        """(input, output) external Q of the end resonators of a coupled-resonator realisation.
+
+        Butterworth and Chebyshev stages only (see :mod:`sdrx.chain.ladder`); None otherwise.
+        """
+        if self.response not in ("butterworth", "chebyshev"):
+            return None
+        return end_resonator_q(self.response, self.order, self.f0_hz, self.bandwidth_hz, self.ripple_db)
 
 
 def design_if_stage(st: IfStageSpec, if_hz: float, index: int = 1) -> IfStageDesign:
@@ -164,8 +176,9 @@ def design_if_stage(st: IfStageSpec, if_hz: float, index: int = 1) -> IfStageDes
         raise ParameterError(f"if_stage[{index}].response: {st.response!r} unknown")
     bw = st.bandwidth_hz
     zb, pb, kb = signal.lp2bp_zpk(z, p, k, wo=w0, bw=TWO_PI * bw)
+    ripple = st.ripple_db if st.response in ("chebyshev", "elliptic") else 0.0
     return IfStageDesign(st.response, n, if_hz, bw, if_hz / bw, st.gain_db, st.agc,
-                         np.asarray(zb, complex), np.asarray(pb, complex), float(np.real(kb)))
+                         np.asarray(zb, complex), np.asarray(pb, complex), float(np.real(kb)), ripple)
 
 
 @dataclass(frozen=True)

@@ -180,7 +180,10 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
     qs = sel.q_summary(design, tune, spacing, designed)
     des["q"] = {
         "stages": [{"stage": s["stage"], "response": s["response"], "order": s["order"], "f0_hz": _hz(s["f0_hz"]),
-                    "bandwidth_hz": _hz(s["bandwidth_hz"]), "loaded_q": _q(s["loaded_q"])} for s in qs["stages"]],
+                    "bandwidth_hz": _hz(s["bandwidth_hz"]), "loaded_q": _q(s["loaded_q"]),
+                    "end_resonator_q_in": None if s["end_resonator_q_in"] is None else _q(s["end_resonator_q_in"]),
+                    "end_resonator_q_out": None if s["end_resonator_q_out"] is None else _q(s["end_resonator_q_out"])}
+                   for s in qs["stages"]],
         "rejection_db": _db(qs["rejection_db"]),
         "offset_hz": _hz(qs["offset_hz"]),
         "equivalent_rf": _q(qs["equivalent_rf"]),

@@ -93,17 +93,22 @@ def _selectivity_table(data):
 def _q_tables(data):
     q = data["designed"]["q"]
     rows = ["<tr><th>stage</th><th>response</th><th>order</th><th>centre, Hz</th>"
-            "<th>design bandwidth, Hz</th><th>loaded Q</th></tr>"]
+            "<th>design bandwidth, Hz</th><th>loaded Q</th><th>end-resonator Q, in</th>"
+            "<th>end-resonator Q, out</th></tr>"]
     for i, s in enumerate(q["stages"]):
         base = f"designed.q.stages.{i}."
-        rows.append("<tr><td>%s</td><td>%s</td>%s%s%s%s</tr>" % (
+        rows.append("<tr><td>%s</td><td>%s</td>%s%s%s%s%s%s</tr>" % (
             _e(s["stage"]), _e(s["response"]), _num(data, base + "order"), _num(data, base + "f0_hz"),
-            _num(data, base + "bandwidth_hz"), _num(data, base + "loaded_q")))
+            _num(data, base + "bandwidth_hz"), _num(data, base + "loaded_q"),
+            _num(data, base + "end_resonator_q_in"), _num(data, base + "end_resonator_q_out")))
     t1 = ("<table>" + "".join(rows) + "</table>"
           '<p class="note" id="q-note">Loaded Q: of the circuit for single-tuned and double-tuned stages (and the '
           "preselector); for filter stages (butterworth, chebyshev, elliptic, bessel) the stage's centre over its "
           "design bandwidth, f0/BW, not the Q of the resonators that would build it. Design bandwidth: the "
-          "-3 dB full width; for chebyshev and elliptic stages the ripple band.</p>")
+          "-3 dB full width; for chebyshev and elliptic stages the ripple band. End-resonator Q: the external Q "
+          "the first and last resonators of a coupled-resonator Butterworth or Chebyshev filter must be loaded to, "
+          "g0·g1·f0/BW and g_n·g_(n+1)·f0/BW from the ladder prototype's g-values (not given for bessel and "
+          "elliptic stages, which have no closed-form g-values).</p>")
     rows = ["<tr><th></th><th>at RF (the tune)</th><th>at the IF</th></tr>",
             _row("equivalent Q, exact (one single-tuned circuit)",
                  [_num(data, "designed.q.equivalent_rf"), _num(data, "designed.q.equivalent_if")]),
