@@ -147,3 +147,42 @@ def test_low_side_injection_image_below_the_tuning():
     w = carrier_level_db(d, info, tune, tune, level_dbfs=LEVEL, seconds=SECONDS, settle_s=0.005)
     im = carrier_level_db(d, info, tune, f_im, level_dbfs=LEVEL, seconds=SECONDS, settle_s=0.005)
     assert w - im == pytest.approx(_preselector_rejection_db(40.0, tune, f_im), abs=0.5)
+
+
+@pytest.mark.parametrize("path", ["fast", "exact"])
+def test_low_side_lo_below_the_if_hears_the_image_at_2if_minus_tune(path):
+    # tune 600 kHz, IF 455 kHz, low side: LO 145 kHz lies below the IF, so the image is 2·IF − f = 310 kHz,
+    # which reaches the IF through the sum product 310 + 145 = 455 kHz
+    # source: common practice (mixer spur charts, m·f_LO ± n·f_RF = IF with m = n = 1)
+    tune = 600e3
+    info = iq_info(FS, 800e3)                    # band 200 kHz .. 1400 kHz: both inside
+    d = design_chain({"if_frequency": "455k", "injection": "low", "preselector": {"kind": "none"},
+                      "agc": {"enabled": False}})
+    f_im = 2 * IF_HZ - tune
+    assert d.image_hz(tune) == pytest.approx(f_im)
+    assert abs(d.rf_response(f_im, tune)[0]) == pytest.approx(abs(d.rf_response(tune, tune)[0]), rel=1e-9)
+    w = carrier_level_db(d, info, tune, tune, level_dbfs=LEVEL, seconds=SECONDS, settle_s=0.005, path=path)
+    im = carrier_level_db(d, info, tune, f_im, level_dbfs=LEVEL, seconds=SECONDS, settle_s=0.005, path=path)
+    # source: physical identity — a real multiplier's image response equals its wanted response
+    assert w == pytest.approx(LEVEL, abs=0.1)
+    assert im == pytest.approx(w, abs=0.5)
+
+
+def test_low_side_lo_below_the_if_image_beats_upright_in_both_paths():
+    # the sum-product image arrives upright (A/2·e^{jβ}), the low-side wanted upright too (A/2·e^{jα}):
+    # |e^{jα} + e^{jβ}| = 2|cos((α−β)/2)|, the same in both paths
+    # source: physical identity — cos a·cos b = ½cos(a−b) + ½cos(a+b)
+    tune = 600e3
+    info = iq_info(FS, 800e3)
+    d = design_chain({"if_frequency": "455k", "injection": "low", "preselector": {"kind": "none"},
+                      "agc": {"enabled": False}})
+    from helpers_rx import carrier, run_receiver
+
+    n = int(SECONDS * FS)
+    for alpha, beta in [(0.0, 0.0), (1.0, -1.0), (0.3, 0.9)]:
+        x = (carrier(tune, LEVEL, FS, info.center_hz, n, alpha)
+             + carrier(2 * IF_HZ - tune, LEVEL, FS, info.center_hz, n, beta))
+        got = [run_receiver(d, info, tune, x, path=p)[1].stats(0.005)["carrier_dbfs"]["mean"] for p in ("fast", "exact")]
+        expected = LEVEL + 20 * math.log10(2 * abs(math.cos((alpha - beta) / 2)))
+        assert got[0] == pytest.approx(expected, abs=0.1), (alpha, beta)
+        assert got[1] == pytest.approx(expected, abs=0.1), (alpha, beta)

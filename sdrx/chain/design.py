@@ -298,8 +298,18 @@ class ChainDesign:
         return tune_hz + self.if_hz if self.injection == "high" else tune_hz - self.if_hz
 
     def image_hz(self, tune_hz: float) -> float:
-        """Image frequency: tune ± 2·IF, on the far side of the LO."""
-        return tune_hz + 2 * self.if_hz if self.injection == "high" else tune_hz - 2 * self.if_hz
+        """Image frequency: tune + 2·IF (high-side), |tune − 2·IF| (low-side).
+
+        A low-side LO below the IF (tune < 2·IF) has its image at 2·IF − tune,
+        which reaches the IF through the sum product f + f_LO.
+
+        Examples
+        --------
+        >>> d = design_chain({"injection": "low"})
+        >>> d.image_hz(1500e3), d.image_hz(600e3)
+        (590000.0, 310000.0)
+        """
+        return tune_hz + 2 * self.if_hz if self.injection == "high" else abs(tune_hz - 2 * self.if_hz)
 
     def if_response(self, f_if_hz):
         """Product of every IF stage's analog response at IF frequencies (no gains)."""
@@ -312,8 +322,9 @@ class ChainDesign:
         """Voltage response from the antenna at RF ``f_hz`` to the IF output.
 
         Preselector × mixer conversion × IF stages evaluated at the IF
-        frequency that ``f_hz`` mixes to, |f − f_LO|. Frequencies on the LO's
-        far side (the image side) take the mixer's image factor. Stage gains
+        frequency that ``f_hz`` mixes to, |f − f_LO| (or f + f_LO where that
+        is nearer the IF: a low-side LO below the IF). Frequencies on the LO's
+        far side, and those reaching the IF by the sum, take the mixer's image factor. Stage gains
         are not included. Divide by ``rf_response(tune_hz, tune_hz)`` for
         relative selectivity.
 
@@ -327,7 +338,10 @@ class ChainDesign:
         f = np.atleast_1d(np.asarray(f_hz, dtype=float))
         lo = self.lo_hz(tune_hz)
         f_if = np.abs(f - lo)
-        wanted_side = (f < lo) if self.injection == "high" else (f > lo)
+        # an LO below the IF also reaches it through the sum product f + f_LO (the image 2·IF − tune)
+        by_sum = np.abs(f + lo - self.if_hz) < np.abs(f_if - self.if_hz)
+        f_if = np.where(by_sum, f + lo, f_if)
+        wanted_side = ((f < lo) if self.injection == "high" else (f > lo)) & ~by_sum
         k = np.where(wanted_side, self.mixer.k_wanted, self.mixer.k_image)
         return self.preselector.response(f, tune_hz) * k * self.if_response(f_if)
 

@@ -5,6 +5,9 @@ the image channel v are cut out at the channel rate. A real mixer leaves
 
     high-side:  u = K_w·conj(w) + K_im·v        low-side:  u = K_w·w + K_im·conj(v)
 
+(a low-side LO below the IF has its image at 2·f_IF − f_t, which arrives
+upright through the sum product: u = K_w·w + conj(K_im)·v)
+
 (conversion factors 1/2 for a real multiplier, K1/K2 for a quadrature
 mixer). Each IF stage acts on u through H_eq(x) = H(f_IF + x): its
 singularities near +f_IF, moved to 0 Hz and mapped with z = e^{sT}, run as a
@@ -65,13 +68,22 @@ class FastFrontEnd:
         f_im = design.image_hz(tune_hz)
         off = 0.0 if kind == "real" else center_hz
 
+        # the image reaches the IF inverted through the difference product, except that of a
+        # low-side LO below the IF (f_im = 2·IF − f_t), which arrives upright through the sum
+        # f_im + f_LO, with the conjugate factor conj(K2) (the LO's e^{+jθ} part)
+        by_sum = not high and design.lo_hz(tune_hz) < design.if_hz
         if high:
             resp_w = lambda d: kw * pre.response(f_t + d, f_t) * np.conj(C(-d))  # noqa: E731
-            resp_v = lambda d: ki * pre.response(f_im + d, f_t) * C(d)  # noqa: E731
         else:
             resp_w = lambda d: kw * pre.response(f_t + d, f_t) * C(d)  # noqa: E731
+        if high:
+            resp_v = lambda d: ki * pre.response(f_im + d, f_t) * C(d)  # noqa: E731
+        elif by_sum:
+            resp_v = lambda d: np.conj(ki) * pre.response(f_im + d, f_t) * C(d)  # noqa: E731
+        else:
             resp_v = lambda d: ki * pre.response(f_im + d, f_t) * np.conj(C(-d))  # noqa: E731
         self.conj_w = high
+        self.conj_v = not high and not by_sum
         lo, hi = band_hz
         half = plan.f_pass_hz
         self.image_in_capture = (f_im - half >= lo) and (f_im + half <= hi)
@@ -84,15 +96,9 @@ class FastFrontEnd:
         self._drop = plan.delay_out  # FIR centring delay, removed once
 
     def _combine(self, outs):
-        w = outs[0]
-        if self.conj_w:
-            u = np.conj(w)
-            if self.has_image:
-                u = u + outs[1]
-        else:
-            u = w.copy()
-            if self.has_image:
-                u = u + np.conj(outs[1])
+        u = np.conj(outs[0]) if self.conj_w else outs[0]
+        if self.has_image:
+            u = u + (np.conj(outs[1]) if self.conj_v else outs[1])
         if self._drop:
             k = min(self._drop, len(u))
             u = u[k:]
