@@ -55,6 +55,13 @@ class Agc:
         single-signal selectivity method).
     step : int
         Samples per control interval.
+    grid_offset : int
+        Position of the first sample inside its control interval, for a
+        signal that starts part-way into the capture: the intervals then lie
+        on the same absolute grid as a run from the capture's first sample,
+        and an excerpt settles to the same gain as the whole run (the loop's
+        steady state depends on where the intervals fall on the modulation).
+        The first interval is the shorter rest of that interval.
 
     Examples
     --------
@@ -67,16 +74,17 @@ class Agc:
     """
 
     def __init__(self, spec, fs: float, fixed_gain_db: float, start_gain_db: float,
-                 hold_gain_db: float | None = None, step: int = 64):
+                 hold_gain_db: float | None = None, step: int = 64, grid_offset: int = 0):
         self.spec = spec
         self.fs = fs
         self.step = step
+        self._acc_from = int(grid_offset) % step   # first valid value in acc (the first interval only)
         self.fixed_gain_db = fixed_gain_db
         self.enabled = bool(spec.enabled) and hold_gain_db is None
         g0 = hold_gain_db if hold_gain_db is not None else start_gain_db
         if self.enabled:
             g0 = min(max(g0, spec.min_gain_db), spec.max_gain_db)
-        self.state = AgcState(g0, g0, 0, np.zeros(step), 0)
+        self.state = AgcState(g0, g0, 0, np.zeros(step), self._acc_from)
         self._settled = not self.enabled   # the loop starts settled on the first interval
         T = step / fs
         self._a_att = 1.0 - math.exp(-T / (spec.attack_ms * 1e-3))
@@ -177,8 +185,13 @@ class Agc:
             st.acc_n += take
             pos += take
             if st.acc_n == step:
-                # the same reduction as for whole intervals below: identical for any split
-                self._update(float(st.acc.reshape(1, step).mean(axis=1)[0]))
+                if self._acc_from:
+                    # the first, shorter interval of a grid that started part-way in
+                    self._update(float(np.mean(st.acc[self._acc_from:])))
+                    self._acc_from = 0
+                else:
+                    # the same reduction as for whole intervals below: identical for any split
+                    self._update(float(st.acc.reshape(1, step).mean(axis=1)[0]))
                 st.acc_n = 0
             # whole intervals in one vectorised pass where possible
             whole = (n - pos) // step

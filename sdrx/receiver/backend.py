@@ -74,12 +74,16 @@ class Backend:
         Channel rate, Hz.
     agc_hold_gain_db : float, optional
         Hold the AGC stage gain (single-signal measurements).
+    first_sample_ch : int
+        Channel-rate index of the first sample in the whole capture (an
+        excerpt's AGC control intervals stay on the whole run's grid).
     """
 
-    def __init__(self, design, fs_ch: float, agc_hold_gain_db=None):
+    def __init__(self, design, fs_ch: float, agc_hold_gain_db=None, first_sample_ch: int = 0):
         self.design = design
         self.fs_ch = fs_ch
-        self.agc = Agc(design.agc, fs_ch, design.fixed_gain_db, design.agc_stage_gain_db, agc_hold_gain_db)
+        self.agc = Agc(design.agc, fs_ch, design.fixed_gain_db, design.agc_stage_gain_db, agc_hold_gain_db,
+                       grid_offset=first_sample_ch)
         self.detector = make_detector(design.detector, fs_ch)
         au = design.audio
         sos_hp = signal.butter(au.highpass_order, au.highpass_hz, btype="highpass", fs=fs_ch, output="sos")

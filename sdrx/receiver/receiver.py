@@ -101,7 +101,10 @@ class Receiver:
 
             self.front = ExactFrontEnd(design, self.plan, info, tune_hz, first_sample, if_rate_hz)
             self.warnings.extend(self.front.warnings)
-        self.backend = Backend(design, self.fs_ch, agc_hold_gain_db)
+        # the excerpt's first sample on the channel-rate grid of the whole capture (nearest sample
+        # when the excerpt starts between two)
+        first_ch = int(round(first_sample * self.fs_ch / info.fs))
+        self.backend = Backend(design, self.fs_ch, agc_hold_gain_db, first_ch)
         self.audio_fs = float(design.audio.rate_hz)
         self._ref = float(abs(design.rf_response(tune_hz, tune_hz)[0]))
         self._n_in = 0
