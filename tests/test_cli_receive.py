@@ -131,6 +131,9 @@ def test_bad_chain_specs_fail_with_one_line_and_exit_2(tmp_path, capture, capsys
     (["--path", "exact", "--if-rate", "2M"], r"--if-rate 2 MHz: the LO 1\.455 MHz falls outside what that rate can represent"),
     (["--path", "exact", "--if-rate", "3.6M"], r"--if-rate 3\.6 MHz: too low to hold every mixing product"),
     (["--if-rate", "9.6M"], r"--if-rate: only the exact path has an IF sample rate"),
+    # not a multiple of fs/512 (240 kHz / 512 = 468.75 Hz)
+    (["--path", "exact", "--if-rate", "7.777M"],
+     r"--if-rate 7777000: not a usable IF sample rate for the capture rate 240 kHz \(use a multiple of 468\.75 Hz"),
     (["--chain", "mediun"], r"--chain mediun: no such preset or file \(presets: medium, narrow, wide"),
 ])
 def test_bad_options_fail_with_one_line_and_exit_2(tmp_path, capture, capsys, extra, pattern):
@@ -157,3 +160,30 @@ def test_existing_output_is_refused_without_force(tmp_path, capture, capsys):
     rc, _, se = run(["receive", capture, "--tune", "1M", "-o", out, "--quiet", "--force"], capsys)
     assert rc in (0, None), se
     assert sf.info(str(out)).samplerate == 48000
+
+
+def test_low_side_lo_at_or_below_0_hz_is_refused_in_both_paths(tmp_path, capture, capsys):
+    # tune 400 kHz, IF 455 kHz, low side: LO = 400 − 455 = −55 kHz (common practice: low-side LO = f − IF)
+    chain = tmp_path / "low.toml"
+    chain.write_text('injection = "low"\n')
+    wide = tmp_path / "wide.sigmf-meta"
+    n = int(0.02 * FS)
+    with open_writer(wide, fs=FS, kind="iq", datatype="ci16_le", center_hz=400e3) as w:
+        w.write(am_station(400e3, -20.0, 0.3, 1000.0, FS, 400e3, n).astype(np.complex64))
+    for path in ("fast", "exact"):
+        before = sorted(p.name for p in tmp_path.iterdir())
+        rc, so, se = run(["receive", wide, "--tune", "400k", "--chain", chain, "--path", path,
+                          "-o", tmp_path / "out.wav", "--quiet"], capsys)
+        _assert_clean_failure(rc, so, se, tmp_path, before,
+                              r"--tune 400 kHz: with low-side injection and IF 455 kHz the LO would be at -55 kHz; "
+                              r"tune above 455 kHz")
+
+
+@pytest.mark.parametrize("path", ["fast", "exact"])
+def test_both_paths_warn_when_the_image_is_outside_the_capture(tmp_path, capture, capsys, path):
+    # capture 880 kHz .. 1.12 MHz, tune 1 MHz: image 1.91 MHz (common practice: f + 2·IF, high side)
+    rc, so, se = run(["receive", capture, "--tune", "1M", "--path", path, "-o", tmp_path / "out.wav",
+                      "--summary", tmp_path / "out.json", "--quiet"], capsys)
+    assert rc in (0, None), se
+    warnings = json.loads((tmp_path / "out.json").read_text())["warnings"]
+    assert any("image channel 1.91 MHz is outside the capture" in w for w in warnings), warnings

@@ -206,8 +206,17 @@ class ExactFrontEnd:
                     f"--if-rate {format_frequency(fs_if)}: too low to hold every mixing product of the captured band "
                     f"(needs above {format_frequency(2 * top_product)})"
                 )
-        if f_lo <= 0:
-            raise ParameterError(f"--tune {format_frequency(tune_hz)}: low-side LO would be at {format_frequency(f_lo)}")
+            # the RF synthesizer's segments need fs_if·512/fs whole, the IF channelizer a small
+            # ratio fs_if/fs_ch (the same conditions the automatic choice meets)
+            u = Fraction(fs_if).limit_denominator(1000) / Fraction(info.fs).limit_denominator(1000)
+            r_ch = (Fraction(fs_if).limit_denominator(1000)
+                    / Fraction(plan.fs_ch).limit_denominator(1000)).limit_denominator(4096)
+            if (u * 512).denominator != 1 or r_ch.denominator > 512 or abs(float(u) * info.fs - fs_if) > 1e-6 * fs_if:
+                auto = choose_if_rate(info.fs, hi_band, f_lo, plan.fs_ch)
+                raise ParameterError(
+                    f"--if-rate {fs_if:.10g}: not a usable IF sample rate for the capture rate {format_frequency(info.fs)} "
+                    f"(use a multiple of {info.fs / 512:g} Hz, such as the automatic {auto:.10g})"
+                )
         self.fs_if = fs_if
         self.f_lo = f_lo
         pre = design.preselector

@@ -25,7 +25,21 @@ from scipy import signal
 from ..dsp.channelizer import ChannelSpec, Channelizer
 from ..dsp.discretize import lowpass_equivalent
 
-__all__ = ["FastFrontEnd"]
+__all__ = ["FastFrontEnd", "image_coverage"]
+
+
+def image_coverage(f_im_hz: float, band_hz, plan) -> str:
+    """How much of the image channel the capture holds: "inside", "partly" or "outside".
+
+    "inside" when the channel's flat part (± plan.f_pass_hz) lies in the band,
+    "partly" when some of its window (± plan.f_stop_hz) does.
+    """
+    lo, hi = band_hz
+    if f_im_hz - plan.f_pass_hz >= lo and f_im_hz + plan.f_pass_hz <= hi:
+        return "inside"
+    if f_im_hz + plan.f_stop_hz > lo and f_im_hz - plan.f_stop_hz < hi:
+        return "partly"
+    return "outside"
 
 
 class FastFrontEnd:
@@ -84,12 +98,11 @@ class FastFrontEnd:
             resp_v = lambda d: ki * pre.response(f_im + d, f_t) * np.conj(C(-d))  # noqa: E731
         self.conj_w = high
         self.conj_v = not high and not by_sum
-        lo, hi = band_hz
-        half = plan.f_pass_hz
-        self.image_in_capture = (f_im - half >= lo) and (f_im + half <= hi)
-        self.image_partly = (not self.image_in_capture) and (f_im + plan.f_stop_hz > lo) and (f_im - plan.f_stop_hz < hi)
+        cover = image_coverage(f_im, band_hz, plan)
+        self.image_in_capture = cover == "inside"
+        self.image_partly = cover == "partly"
         chans = [ChannelSpec(f_t - off, resp_w)]
-        if self.image_in_capture or self.image_partly:
+        if cover != "outside":
             chans.append(ChannelSpec(f_im - off, resp_v))
         self.has_image = len(chans) == 2
         self.channelizer = Channelizer(plan, kind == "iq", chans, first_sample=first_sample)

@@ -16,7 +16,7 @@ from ..units import db20, format_frequency
 from ..dsp.channelizer import plan_channelizer
 from ..dsp.detectors import diagonal_clipping_limit_s
 from .backend import Backend
-from .fast import FastFrontEnd
+from .fast import FastFrontEnd, image_coverage
 
 __all__ = ["Receiver", "PATHS", "channel_rate"]
 
@@ -77,6 +77,11 @@ class Receiver:
                 f"--tune {format_frequency(tune_hz)}: outside the capture's band "
                 f"{format_frequency(lo)} to {format_frequency(hi)} ({name})"
             )
+        if design.lo_hz(tune_hz) <= 0:
+            raise ParameterError(
+                f"--tune {format_frequency(tune_hz)}: with low-side injection and IF {format_frequency(design.if_hz)} "
+                f"the LO would be at {format_frequency(design.lo_hz(tune_hz))}; tune above {format_frequency(design.if_hz)}"
+            )
         fs_ch = channel_rate(design.audio.rate_hz, info.fs)
         self.plan = plan_channelizer(info.fs, fs_ch)
         self.fs_ch = self.plan.fs_ch
@@ -85,17 +90,18 @@ class Receiver:
             self.warnings.append(
                 f"the wanted channel reaches past the capture's band edge ({format_frequency(lo)} to {format_frequency(hi)})"
             )
+        cover = image_coverage(design.image_hz(tune_hz), (lo, hi), self.plan)
+        if cover == "outside":
+            self.warnings.append(
+                f"image channel {format_frequency(design.image_hz(tune_hz))} is outside the capture: "
+                "its signals are absent, so image rejection is not exercised"
+            )
+        elif cover == "partly":
+            self.warnings.append(
+                f"image channel {format_frequency(design.image_hz(tune_hz))} lies partly outside the capture"
+            )
         if path == "fast":
             self.front = FastFrontEnd(design, self.plan, info.kind, info.center_hz, (lo, hi), tune_hz, first_sample)
-            if not self.front.has_image:
-                self.warnings.append(
-                    f"image channel {format_frequency(design.image_hz(tune_hz))} is outside the capture: "
-                    "its signals are absent, so image rejection is not exercised"
-                )
-            elif self.front.image_partly:
-                self.warnings.append(
-                    f"image channel {format_frequency(design.image_hz(tune_hz))} lies partly outside the capture"
-                )
         else:
             from .exact import ExactFrontEnd
 
