@@ -24,6 +24,7 @@ from dataclasses import dataclass, field
 
 from ..errors import ParameterError
 from ..units import format_frequency, parse_db, parse_frequency
+from ..chain.design import image_frequency, lo_frequency  # the one definition of the LO plan
 from . import qfactor
 
 __all__ = [
@@ -265,28 +266,6 @@ def channel_grid(band_hz, spacing_hz) -> tuple:
     lo, hi = band_hz
     n = int(math.floor((hi - lo) / spacing_hz * (1 + _REL) + _REL)) + 1
     return tuple(lo + k * spacing_hz for k in range(n))
-
-
-def lo_frequency(tune_hz, if_hz, injection="high"):
-    """LO frequency: ``f + IF`` (high side) or ``f - IF`` (low side).
-
-    Examples
-    --------
-    >>> lo_frequency(1000e3, 455e3)
-    1455000.0
-    """
-    return tune_hz + if_hz if injection == "high" else tune_hz - if_hz
-
-
-def image_frequency(tune_hz, if_hz, injection="high"):
-    """Image frequency: ``f + 2·IF`` (high side) or ``|f - 2·IF|`` (low side).
-
-    Examples
-    --------
-    >>> image_frequency(1000e3, 455e3)
-    1910000.0
-    """
-    return tune_hz + 2 * if_hz if injection == "high" else abs(tune_hz - 2 * if_hz)
 
 
 def half_if_spur(tune_hz, if_hz, injection="high"):

@@ -26,6 +26,8 @@ __all__ = [
     "MixerDesign",
     "ChainDesign",
     "design_chain",
+    "lo_frequency",
+    "image_frequency",
     "design_if_stage",
     "single_tuned_zpk",
     "double_tuned_zpk",
@@ -75,6 +77,33 @@ def double_tuned_zpk(f0_hz: float, q: float):
     a = w0 / q
     p = np.concatenate([np.roots([1.0, a * (1 + 1j), w0 * w0]), np.roots([1.0, a * (1 - 1j), w0 * w0])])
     return np.array([0.0 + 0j, 0.0 + 0j]), p, 2.0 * a * a
+
+
+def lo_frequency(tune_hz, if_hz, injection="high"):
+    """LO frequency: ``f + IF`` (high side) or ``f - IF`` (low side).
+
+    Examples
+    --------
+    >>> lo_frequency(1000e3, 455e3)
+    1455000.0
+    """
+    return tune_hz + if_hz if injection == "high" else tune_hz - if_hz
+
+
+def image_frequency(tune_hz, if_hz, injection="high"):
+    """Image frequency: ``f + 2·IF`` (high side) or ``|f - 2·IF|`` (low side).
+
+    A low-side LO below the IF (f < 2·IF) has its image at 2·IF − f, which
+    reaches the IF through the sum product.
+
+    Examples
+    --------
+    >>> image_frequency(1000e3, 455e3)
+    1910000.0
+    >>> image_frequency(600e3, 455e3, "low")
+    310000.0
+    """
+    return tune_hz + 2 * if_hz if injection == "high" else abs(tune_hz - 2 * if_hz)
 
 
 @dataclass(frozen=True)
@@ -295,7 +324,7 @@ class ChainDesign:
 
     def lo_hz(self, tune_hz: float) -> float:
         """LO frequency: tune + IF (high-side) or tune − IF (low-side)."""
-        return tune_hz + self.if_hz if self.injection == "high" else tune_hz - self.if_hz
+        return lo_frequency(tune_hz, self.if_hz, self.injection)
 
     def image_hz(self, tune_hz: float) -> float:
         """Image frequency: tune + 2·IF (high-side), |tune − 2·IF| (low-side).
@@ -309,7 +338,7 @@ class ChainDesign:
         >>> d.image_hz(1500e3), d.image_hz(600e3)
         (590000.0, 310000.0)
         """
-        return tune_hz + 2 * self.if_hz if self.injection == "high" else abs(tune_hz - 2 * self.if_hz)
+        return image_frequency(tune_hz, self.if_hz, self.injection)
 
     def if_response(self, f_if_hz):
         """Product of every IF stage's analog response at IF frequencies (no gains)."""
