@@ -216,8 +216,7 @@ class Channelizer:
         self._buf = np.zeros(plan.overlap, dtype)   # P zeros of history before the first sample
         self._next_start = first_sample - plan.overlap  # absolute index of _buf[0]
         self._batch = batch
-        self.workers = 2
-        self.dtype = dtype
+        self.workers = 2   # threads for each batch of FFTs (scipy.fft releases the GIL)
 
     def process(self, x: np.ndarray) -> list:
         """Feed input samples; return each channel's new output samples."""

@@ -36,8 +36,9 @@ def diagonal_clipping_limit_s(m: float, fm_hz: float) -> float:
 class EnvelopeDetector:
     """Ideal envelope detector (stateless)."""
 
-    def process(self, u: np.ndarray) -> np.ndarray:
-        return np.abs(u)
+    def process(self, u: np.ndarray, mag=None) -> np.ndarray:
+        """|u| (``mag`` passes it when the caller has it already)."""
+        return np.abs(u) if mag is None else mag
 
 
 class DiodeDetector:
@@ -62,8 +63,10 @@ class DiodeDetector:
         self._pos = 0                  # samples into the current chunk (state; chunks are absolute)
         self._cm = -math.inf           # running maximum of log|u[k]| − k·la in the current chunk (state)
 
-    def process(self, u: np.ndarray) -> np.ndarray:
-        mag = np.abs(u)
+    def process(self, u: np.ndarray, mag=None) -> np.ndarray:
+        """Capacitor voltage for the envelope |u| (``mag`` passes |u| when the caller has it)."""
+        if mag is None:
+            mag = np.abs(u)
         n = len(mag)
         if n == 0:
             return mag
@@ -111,7 +114,8 @@ class SynchronousDetector:
         self._acc = 0j     # rotated envelope summed over the unfinished interval
         self._acc_n = 0
 
-    def process(self, u: np.ndarray) -> np.ndarray:
+    def process(self, u: np.ndarray, mag=None) -> np.ndarray:
+        """In-phase component against the recovered carrier (``mag`` is not used)."""
         out = np.empty(len(u))
         step = self.step
         pos = 0

@@ -112,7 +112,7 @@ def zpk_to_complex_sos(zd, pd, kd) -> np.ndarray:
     return sos
 
 
-def split_near_far(z, p, w0: float):
+def split_near_far(z, p):
     """Split analog singularities into those near +jω0 (upper half plane) and the rest.
 
     Returns
@@ -158,7 +158,7 @@ def lowpass_equivalent(z, p, k, f0_hz: float, fs: float):
     True
     """
     w0 = TWO_PI * f0_hz
-    zn, pn, zf, pf = split_near_far(z, p, w0)
+    zn, pn, zf, pf = split_near_far(z, p)
     zn_s = zn - 1j * w0
     pn_s = pn - 1j * w0
     T = 1.0 / fs

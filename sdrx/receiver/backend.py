@@ -105,9 +105,10 @@ class Backend:
         mag = np.abs(u)
         ug, _ = self.agc.process(u, mag=mag, want_db=False)
         k = len(u) if meter_n is None else min(len(u), meter_n)
+        env = np.abs(ug)   # the gained envelope: for the depth meter and the detector
         if k:
-            self.meter.feed(mag[:k], np.abs(ug[:k]))
-        d = self.detector.process(ug)
+            self.meter.feed(mag[:k], env[:k])
+        d = self.detector.process(ug, mag=env)
         a, self.zi_audio = signal.sosfilt(self.sos_audio, d, zi=self.zi_audio)
         return self.resampler.process(a * self.audio_gain)
 
