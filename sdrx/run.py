@@ -43,16 +43,19 @@ def run_receiver(reader, rx: Receiver, *, first: int, count: int, block_size: in
     fs = reader.info.fs
     done = 0
     n_audio = 0
-    for block in _prefetch(reader.blocks(block_size, start_s=first / fs, duration_s=count / fs)):
-        a = rx.process(block)
-        done += len(block)
-        if len(a):
-            n_audio += len(a)
-            if sink is not None:
-                sink(a)
-        if progress is not None:
-            progress(done, count)
-    a = rx.flush()
+    try:
+        for block in _prefetch(reader.blocks(block_size, start_s=first / fs, duration_s=count / fs)):
+            a = rx.process(block)
+            done += len(block)
+            if len(a):
+                n_audio += len(a)
+                if sink is not None:
+                    sink(a)
+            if progress is not None:
+                progress(done, count)
+        a = rx.flush()
+    finally:
+        rx.close()
     n_audio += len(a)
     if sink is not None and len(a):
         sink(a)

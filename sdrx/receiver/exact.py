@@ -337,6 +337,12 @@ class ExactFrontEnd:
             self._pending = f_rf.result()
         return np.concatenate(outs) if outs else np.zeros(0, complex)
 
+    def close(self):
+        """Stop the worker threads; idempotent."""
+        if self._pool is not None:
+            self._pool.shutdown(wait=True, cancel_futures=True)
+            self._pool = None
+
     def flush(self):
         parts = []
         if self._pending_y is not None:

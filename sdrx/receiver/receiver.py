@@ -196,6 +196,15 @@ class Receiver:
         self._finish_warnings()
         return tail
 
+    def close(self) -> None:
+        """Stop the worker threads (also after an error part-way through); idempotent."""
+        if self._pool is not None:
+            self._pool.shutdown(wait=True, cancel_futures=True)
+            self._pool = None
+        close = getattr(self.front, "close", None)
+        if close is not None:
+            close()
+
     def _finish_warnings(self) -> None:
         det = self.design.detector
         depths = self.backend.meter.depths
