@@ -9,7 +9,7 @@ import numpy as np
 from ..errors import OutputError, ParameterError
 from ..fileio import check_output
 from .datatypes import parse_datatype
-from .wavio import WavStream
+from .wavio import WavStream, WavStreamWriter
 
 __all__ = ["AudioWriter"]
 
@@ -17,7 +17,7 @@ _PCM16 = parse_datatype("ri16_le")
 _FLOAT = parse_datatype("rf32_le")
 
 
-class AudioWriter:
+class AudioWriter(WavStreamWriter):
     """Write audio in [-1, 1] to WAV: 16-bit PCM (default) or 32-bit float; RF64 over 4 GiB.
 
     Parameters
@@ -75,16 +75,6 @@ class AudioWriter:
                                  expected_frames=expected_samples, info={})
         self._closed = False
 
-    def __enter__(self):
-        return self
-
-    def __exit__(self, exc_type, exc, tb):
-        if exc_type is None:
-            self.close()
-        else:
-            self.abort()
-        return False
-
     def write(self, block) -> int:
         """Append a block of audio; returns the number of values clipped (see Notes)."""
         if self._closed:
@@ -111,15 +101,3 @@ class AudioWriter:
         self.samples += a.shape[0]
         self.clipped += clipped
         return clipped
-
-    def close(self) -> None:
-        """Finish the header and rename the file into place."""
-        if self._closed:
-            return
-        self._closed = True
-        self._stream.close()
-
-    def abort(self) -> None:
-        """Remove the temporary file; nothing appears under the final name."""
-        self._closed = True
-        self._stream.abort()

@@ -26,7 +26,7 @@ import numpy as np
 from ..errors import OutputError, ParameterError
 from ..fileio import atomic_path
 
-__all__ = ["AtomicFile", "WavStream", "RIFF_LIMIT"]
+__all__ = ["AtomicFile", "WavStream", "AtomicWriter", "WavStreamWriter", "RIFF_LIMIT"]
 
 RIFF_LIMIT = 0xFFFFFFFF  # largest size a 32-bit RIFF size field holds
 _FORMATS = {"pcm16": (1, 16, np.dtype("<i2")), "float32": (3, 32, np.dtype("<f4"))}
@@ -212,3 +212,42 @@ class WavStream:
     def abort(self) -> None:
         """Remove the temporary file; nothing appears under the final name."""
         self._file.abort()
+
+
+class AtomicWriter:
+    """Context manager over an output: ``close()`` on a normal exit, ``abort()`` on an exception.
+
+    Subclasses set ``self._closed = False`` and provide ``close`` and ``abort``.
+    """
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, exc_type, exc, tb):
+        if exc_type is None:
+            self.close()
+        else:
+            self.abort()
+        return False
+
+    def close(self) -> None:  # pragma: no cover - abstract
+        raise NotImplementedError
+
+    def abort(self) -> None:  # pragma: no cover - abstract
+        raise NotImplementedError
+
+
+class WavStreamWriter(AtomicWriter):
+    """A writer whose output is one :class:`WavStream` held in ``self._stream``."""
+
+    def close(self) -> None:
+        """Finish the header and rename the file into place."""
+        if self._closed:
+            return
+        self._closed = True
+        self._stream.close()
+
+    def abort(self) -> None:
+        """Remove the temporary file; nothing appears under the final name."""
+        self._closed = True
+        self._stream.abort()

@@ -13,7 +13,7 @@ from ..fileio import check_output
 from ..units import parse_frequency, validate_fs
 from .datatypes import parse_datatype
 from .sigmf import build_meta, is_sigmf_path, sigmf_pair
-from .wavio import AtomicFile, WavStream
+from .wavio import AtomicFile, AtomicWriter, WavStream, WavStreamWriter
 
 __all__ = ["CaptureWriter", "SigMFWriter", "WavCaptureWriter", "open_writer", "WAV_DATATYPES"]
 
@@ -21,7 +21,7 @@ WAV_DATATYPES = {"ri16_le": "pcm16", "ci16_le": "pcm16", "rf32_le": "float32", "
 _META_KEYS = ("description", "author", "datetime", "annotations", "global")
 
 
-class CaptureWriter:
+class CaptureWriter(AtomicWriter):
     """Base of the capture writers: a context manager with ``write(block)``.
 
     ``write`` takes float (real) or complex (I/Q) samples at full scale 1.0
@@ -39,16 +39,6 @@ class CaptureWriter:
         self.clipped = 0
         self._closed = False
 
-    def __enter__(self):
-        return self
-
-    def __exit__(self, exc_type, exc, tb):
-        if exc_type is None:
-            self.close()
-        else:
-            self.abort()
-        return False
-
     def _encode(self, block):
         if self._closed:
             raise OutputError(f"{self.path}: writer is closed")
@@ -63,12 +53,6 @@ class CaptureWriter:
         return codes, clipped
 
     def write(self, block) -> int:  # pragma: no cover - abstract
-        raise NotImplementedError
-
-    def close(self) -> None:  # pragma: no cover - abstract
-        raise NotImplementedError
-
-    def abort(self) -> None:  # pragma: no cover - abstract
         raise NotImplementedError
 
 
@@ -145,7 +129,7 @@ class SigMFWriter(CaptureWriter):
         self._meta_file.abort()
 
 
-class WavCaptureWriter(CaptureWriter):
+class WavCaptureWriter(WavStreamWriter, CaptureWriter):
     """Write a WAV capture: real -> mono, I/Q -> stereo (I left, Q right); RF64 over 4 GiB.
 
     A WAV file cannot hold a centre frequency: reading an I/Q WAV back needs
@@ -180,18 +164,6 @@ class WavCaptureWriter(CaptureWriter):
             self.abort()
             raise
         return clipped
-
-    def close(self) -> None:
-        """Finish the header and rename into place."""
-        if self._closed:
-            return
-        self._closed = True
-        self._stream.close()
-
-    def abort(self) -> None:
-        """Remove the temporary file."""
-        self._closed = True
-        self._stream.abort()
 
 
 def open_writer(path, *, fs, kind, datatype, center_hz=None, force=False, inputs=(), meta=None,
