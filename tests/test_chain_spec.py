@@ -35,7 +35,7 @@ def test_empty_spec_fills_every_key_with_its_default():
     d = spec_to_dict(spec)
     for key in ("name", "if_frequency", "injection", "preselector", "mixer", "if_stage", "agc", "detector", "audio"):
         assert key in d
-    assert set(d["agc"]) == {"enabled", "reference_dbfs", "attack_ms", "release_ms", "hang_ms",
+    assert set(d["agc"]) == {"enabled", "reference_dbfs", "carrier_filter_ms", "attack_ms", "release_ms", "hang_ms",
                              "max_gain_db", "min_gain_db"}
     assert set(d["preselector"]) == {"kind", "q", "cutoff", "low", "high", "order"}
     assert set(d["mixer"]) == {"kind", "gain_error_db", "phase_error_deg"}

@@ -1,37 +1,35 @@
-"""AGC through the whole Receiver: range, attack, release and hang, measured on the running chain.
+"""The carrier AGC through the whole Receiver: its filter, attack, release, hang, range and start.
 
-The gain trace is read by wrapping the receiver's AGC (``rx.backend.agc.process``
-returns the total gain in dB per channel-rate sample); levels are stepped in
-the capture itself. Expected times come from the first-order loop the spec
-describes (gain error decays as exp(−t/τ), τ = attack_ms or release_ms).
+The gain trace is read from the receiver's AGC (``rx.backend.agc.trace``
+keeps the total gain in dB per channel-rate sample); levels are stepped in
+the capture itself. Expected trajectories come from the model the AGC
+documents (sdrx/dsp/agc.py), solved here independently as a differential
+equation with scipy.integrate: the carrier filter 1/(1 + sτ_f)² on the
+envelope, then the gain approaching reference − level with time constant
+τ = attack or release:
+
+    dg/dt = (reference − L(t) − g)/τ
 """
 
 from __future__ import annotations
 
 import math
-import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
+from scipy import integrate, signal
 
 from sdrx.chain import design_chain
+from sdrx.chain.spec import AgcSpec
+from sdrx.dsp.agc import Agc, carrier_filter_sos
 from sdrx.receiver import Receiver
 
-sys.path.insert(0, str(Path(__file__).parent))  # tests/helpers_rx.py (pytest importlib mode)
-from helpers_rx import am_station, carrier, iq_info, run_receiver, sine_fit  # noqa: E402
+from helpers_rx import am_station, carrier, iq_info, run_receiver, sine_fit
 
 FS = 240e3
 CENTER = 1.0e6
 TUNE = 1.0e6
 INFO = iq_info(FS, CENTER)
-
-
-def _spy_gain(rx):
-    """Record the AGC's per-sample gain (dB) as the receiver runs."""
-    trace = []
-    rx.backend.agc.trace = trace   # the AGC keeps each block's total gain (dB) in this list
-    return trace
 
 
 def _stepped_carrier(levels_s):
@@ -45,97 +43,134 @@ def _stepped_carrier(levels_s):
 
 
 def _gain_trace(design, x, block=24000):
+    """The AGC stage's gain (dB, fixed stages left out) per channel sample of the input, pre-roll removed."""
     rx = Receiver(design, INFO, TUNE, path="fast")
-    trace = _spy_gain(rx)
+    trace = []
+    rx.backend.agc.trace = trace
     for i in range(0, len(x), block):
         rx.process(np.asarray(x[i:i + block], np.complex64))
     rx.flush()
+    g = np.concatenate(trace)[rx._pre_ch:] - design.fixed_gain_db
     n_ch = int(len(x) * rx.fs_ch / FS) - int(0.002 * rx.fs_ch)   # leave out the zero-padded flush
-    return np.concatenate(trace)[:n_ch], rx.fs_ch
+    return g[:n_ch], rx.fs_ch
+
+
+def test_carrier_filter_is_two_rc_sections():
+    # |H(f)| = 1/(1 + (2πfτ)²) (two first-order RC sections in cascade; an RC network's response)
+    tau = 0.01
+    sos = carrier_filter_sos(tau, 96000.0)
+    f = np.array([1.0, 10.0, 100.0, 1000.0])
+    _, h = signal.sosfreqz(sos, worN=f, fs=96000.0)
+    expected = 1 / (1 + (2 * np.pi * f * tau) ** 2)
+    # impulse invariance at 96 kHz: within 0.5 % up to 1 kHz (measured 0.3 %)
+    np.testing.assert_allclose(np.abs(h), expected, rtol=5e-3)
 
 
 def test_settled_audio_level_within_3_db_over_a_60_db_carrier_range():
-    # release shortened so that the weakest carrier settles within the run; the range is what is tested
-    d = design_chain({"agc": {"release_ms": 40, "attack_ms": 5}})
-    n = int(0.35 * FS)
+    d = design_chain({})
+    n = int(0.3 * FS)
     amps = {}
     for level in (-10.0, -20.0, -30.0, -40.0, -50.0, -60.0, -70.0):
-        x = am_station(TUNE, level, 0.3, 1000.0, FS, CENTER, n)   # source: 1 kHz at 30 % — common practice
+        x = am_station(TUNE, level, 0.3, 1000.0, FS, CENTER, n)   # 1 kHz at 30 %: common practice
         audio, rx = run_receiver(d, INFO, TUNE, x)
-        seg = audio[int(0.25 * 48000):int(0.35 * 48000)]
+        seg = audio[int(0.2 * 48000):int(0.3 * 48000)]
         amps[level] = 20 * math.log10(sine_fit(seg, 48000.0, 1000.0)[0])
     ref = amps[-40.0]
+    # inside the gain range the loop holds the reference exactly (measured within 0.01 dB)
     for level, a in amps.items():
-        assert a == pytest.approx(ref, abs=3.0), (level, a, ref)   # issue 3: settled audio within ±3 dB over 60 dB
+        assert a == pytest.approx(ref, abs=0.05), (level, a, ref)
 
 
-def test_attack_reaches_within_2_db_of_the_final_gain_in_3_attack_times():
-    attack_ms = 5.0
-    d = design_chain({"agc": {"attack_ms": attack_ms, "release_ms": 300}})
-    t_step = 0.08
-    x = _stepped_carrier([(-50.0, t_step), (-30.0, 0.06)])
+@pytest.mark.parametrize("before, after", [(-50.0, -30.0), (-30.0, -50.0)])
+def test_step_response_follows_the_documented_model(before, after):
+    spec = {"carrier_filter_ms": 10.0, "attack_ms": 20.0, "release_ms": 60.0}
+    d = design_chain({"agc": spec})
+    t_step = 0.1
+    x = _stepped_carrier([(before, t_step), (after, 0.6)])
     g, fs_ch = _gain_trace(d, x)
-    k = int(round(t_step * fs_ch))
-    before = g[k - 10]
-    assert np.ptp(g[k - int(0.01 * fs_ch):k - 5]) < 0.05     # settled before the step
-    final = before - 20.0                                    # linear chain: 20 dB more carrier, 20 dB less gain
-    assert g[-int(0.005 * fs_ch):].mean() == pytest.approx(final, abs=0.1)
-    within = np.nonzero(np.abs(g[k:] - final) <= 2.0)[0][0] / fs_ch
-    assert within <= 3 * attack_ms * 1e-3                    # issue 3 requirement
-    # first-order loop: 20·exp(−t/τ) = 2 at t = τ·ln 10 (11.5 ms for τ = 5 ms)
-    assert within == pytest.approx(attack_ms * 1e-3 * math.log(10.0), rel=0.25)
+    t = np.arange(len(g)) / fs_ch
+    k = int(t_step * fs_ch)
+    # the IF stages' ungained response at the tune (the AGC sees the carrier through them)
+    h_db = 20 * math.log10(abs(d.rf_response(TUNE, TUNE)[0]))
+    ref = d.agc.reference_dbfs - d.fixed_gain_db
+    # the loop acts once per 0.67 ms control interval and sees the level a little later than the
+    # continuous model: within 0.35 dB of the model all along a 20 dB step (measured 0.25 dB)
+    err = np.abs(g[k:] - _model_from_settled(t[k:] - t[k], before + h_db, after + h_db, g[k - 1], ref))
+    assert err.max() < 0.35, err.max()
+    assert g[-1] == pytest.approx(ref - (after + h_db), abs=0.02)   # settled: 10 release times after the step
 
 
-@pytest.mark.parametrize("release_ms", [300.0, 100.0])
-def test_release_time_constant_follows_release_ms(release_ms):
-    d = design_chain({"agc": {"attack_ms": 5, "release_ms": release_ms}})
-    t_step = 0.08
-    after = 3.5 * release_ms * 1e-3
-    x = _stepped_carrier([(-30.0, t_step), (-50.0, after)])
-    g, fs_ch = _gain_trace(d, x)
-    k = int(round(t_step * fs_ch))
-    final = g[k - 10] + 20.0
-    deficit = final - g[k:]
-    t = np.arange(len(deficit)) / fs_ch
-    use = (deficit < 16.0) & (deficit > 1.0)
-    slope, _ = np.polyfit(t[use], np.log(deficit[use]), 1)
-    tau = -1.0 / slope
-    assert tau == pytest.approx(release_ms * 1e-3, rel=0.2)   # issue 3: release follows release_ms within 20 %
+def _model_from_settled(t, level0_db, level1_db, g0, ref):
+    """The model after a step from a settled state (filter holding level0, gain g0)."""
+    a0, a1 = 10 ** (level0_db / 20), 10 ** (level1_db / 20)
+
+    def rhs(tt, y):
+        f1, f2, g = y
+        e = ref - (20 * math.log10(f2) + g)
+        return [(a1 - f1) / 1e-2, (f1 - f2) / 1e-2, e / (20e-3 if e < 0 else 60e-3)]
+    sol = integrate.solve_ivp(rhs, (t[0], t[-1]), [a0, a0, g0], t_eval=t, max_step=2e-4, rtol=1e-8, atol=1e-10)
+    return sol.y[2]
 
 
 def test_hang_holds_the_gain_before_release():
     hang_ms = 100.0
-    d = design_chain({"agc": {"attack_ms": 5, "release_ms": 100, "hang_ms": hang_ms}})
-    t_step = 0.08
-    x = _stepped_carrier([(-30.0, t_step), (-50.0, 0.25)])
+    d = design_chain({"agc": {"carrier_filter_ms": 0, "attack_ms": 5, "release_ms": 50, "hang_ms": hang_ms}})
+    t_step = 0.1
+    x = _stepped_carrier([(-30.0, t_step), (-50.0, 0.3)])
     g, fs_ch = _gain_trace(d, x)
     k = int(round(t_step * fs_ch))
     before = g[k - 10]
-    held = g[k:k + int(0.9 * hang_ms * 1e-3 * fs_ch)]
-    assert np.max(np.abs(held - before)) < 0.05
-    assert g[k + int(2 * hang_ms * 1e-3 * fs_ch)] > before + 5.0
+    held = g[k:k + int(0.95 * hang_ms * 1e-3 * fs_ch)]
+    assert np.max(np.abs(held - before)) < 0.01
+    assert g[k + int(2 * hang_ms * 1e-3 * fs_ch)] > before + 10.0
 
 
 def test_held_agc_keeps_its_gain_and_the_level_reading():
     d = design_chain("medium")
     x = _stepped_carrier([(-30.0, 0.05), (-50.0, 0.05)])
     rx = Receiver(d, INFO, TUNE, path="fast", agc_hold_gain_db=10.0)
-    trace = _spy_gain(rx)
+    trace = []
+    rx.backend.agc.trace = trace
     rx.process(np.asarray(x, np.complex64))
     rx.flush()
     g = np.concatenate(trace)
     assert np.ptp(g) == 0.0
     assert g[0] == pytest.approx(10.0 + sum(st.gain_db for st in d.stages if not st.agc))
+    assert rx.stats()["agc_gain_db"] == {"min": 10.0, "max": 10.0}
     lv = rx.carrier_levels_dbfs(0.0)
     assert lv[1] == pytest.approx(-30.0, abs=0.1) and lv[7] == pytest.approx(-50.0, abs=0.1)
 
 
-def test_excerpt_settles_to_the_whole_run_when_it_starts_between_control_intervals():
-    # An excerpt starting 30 000 channel samples in (not a multiple of the 64-sample control interval) must
-    # settle to the same audio as the whole run over the same span: the AGC's steady state on a modulated
-    # carrier depends on where its intervals fall on the modulation, so they stay on the capture's grid.
-    # (Before, the excerpt's AGC kept a different gain for good: 0.2 dB louder, 33 dB SNR against the run.)
-    # common practice: an excerpt of a recording plays as that span of the whole
+def test_gain_range_leaves_out_the_pre_roll():
+    # the start gain (30 dB for the AGC stage) is held only inside the pre-roll: the reported range
+    # is the settled loop's, the gain that brings a -30 dBFS carrier to the reference through the
+    # other stages and the chain's ungained response at the tune
+    d = design_chain("medium")
+    _, rx = run_receiver(d, INFO, TUNE, _stepped_carrier([(-30.0, 0.2)]))
+    h_db = 20 * math.log10(abs(d.rf_response(TUNE, TUNE)[0]))
+    need = d.agc.reference_dbfs - d.fixed_gain_db - (-30.0 + h_db)
+    g = rx.stats()["agc_gain_db"]
+    assert g["min"] == pytest.approx(need, abs=0.01) and g["max"] == pytest.approx(need, abs=0.01)
+
+
+def test_a_deliberately_fast_agc_still_rides_the_modulation():
+    # carrier_filter_ms = 0 and a 5 ms attack: the loop sees each 0.67 ms interval's mean envelope,
+    # so a 100 Hz tone at 80 % moves the gain by several dB, as a fast AGC does (a user's choice)
+    fast = design_chain({"agc": {"carrier_filter_ms": 0, "attack_ms": 5, "release_ms": 5}})
+    slow = design_chain({})
+    n = int(0.4 * FS)
+    spreads = []
+    for d in (fast, slow):
+        x = am_station(TUNE, -30.0, 0.8, 100.0, FS, CENTER, n)
+        g, fs_ch = _gain_trace(d, x)
+        spreads.append(np.ptp(g[int(0.2 * fs_ch):]))
+    assert spreads[0] > 3.0 and spreads[1] < 0.1, spreads
+
+
+def test_excerpt_settles_to_the_whole_run():
+    # An excerpt starting 30 000 channel samples in (not a multiple of the 64-sample control interval)
+    # settles to the same audio as the whole run over the same span: the control intervals stay on the
+    # capture's grid. Common practice: an excerpt of a recording plays as that span of the whole.
     fs, tune = 240e3, 1000e3
     info = iq_info(fs, tune)
     d = design_chain("medium")
@@ -143,22 +178,24 @@ def test_excerpt_settles_to_the_whole_run_when_it_starts_between_control_interva
     first = 75000                                # 0.3125 s: channel sample 30 000 = 468.75 intervals
     whole, _ = run_receiver(d, info, tune, x)
     part, _ = run_receiver(d, info, tune, x[first:], first_sample=first)
-    a0 = first * 48000 // int(fs)                # audio sample of the excerpt's start (exact here)
+    a0 = first * 48000 // int(fs)
     ref = whole[a0:a0 + len(part)]
-    s = slice(int(0.15 * 48000), len(part) - 200)   # after the excerpt's start transient
+    s = slice(int(0.15 * 48000), len(part) - 200)
     snr_db = 10 * math.log10(np.sum(ref[s] ** 2) / np.sum((part[s] - ref[s]) ** 2))
     assert snr_db > 80.0
 
 
-@pytest.mark.parametrize("block", [1000, 7919])
-def test_agc_grid_offset_is_block_invariant(block):
-    from sdrx.chain.spec import AgcSpec
-    from sdrx.dsp.agc import Agc
-
+@pytest.mark.parametrize("block", [1, 1000, 7919, 30000])
+@pytest.mark.parametrize("carrier_filter_ms", [0.0, 10.0])
+def test_agc_is_block_invariant(block, carrier_filter_ms):
     rng = np.random.default_rng(3)
-    u = (0.01 * (1 + 0.5 * np.cos(2 * np.pi * np.arange(20000) / 96.0))
-         + 1e-4 * rng.standard_normal(20000)).astype(complex)
-    one = Agc(AgcSpec(), 96000.0, 0.0, 0.0, grid_offset=37).process(u)[0]
-    agc = Agc(AgcSpec(), 96000.0, 0.0, 0.0, grid_offset=37)
+    n = 20000 if block > 1 else 3000
+    u = (0.01 * (1 + 0.5 * np.cos(2 * np.pi * np.arange(n) / 96.0)) + 1e-4 * rng.standard_normal(n)).astype(complex)
+    spec = AgcSpec(carrier_filter_ms=carrier_filter_ms)
+    kw = dict(grid_offset=37, freeze=500, stats_from=300)
+    one_agc = Agc(spec, 96000.0, 0.0, 0.0, **kw)
+    one = one_agc.process(u)[0]
+    agc = Agc(spec, 96000.0, 0.0, 0.0, **kw)
     many = np.concatenate([agc.process(u[i:i + block])[0] for i in range(0, len(u), block)])
     np.testing.assert_array_equal(many, one)
+    assert (agc.gain_min_db, agc.gain_max_db) == (one_agc.gain_min_db, one_agc.gain_max_db)

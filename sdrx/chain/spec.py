@@ -89,8 +89,9 @@ class AgcSpec:
 
     enabled: bool = True
     reference_dbfs: float = -12.0
-    attack_ms: float = 5.0
-    release_ms: float = 300.0
+    carrier_filter_ms: float = 10.0
+    attack_ms: float = 20.0
+    release_ms: float = 30.0
     hang_ms: float = 0.0
     max_gain_db: float = 60.0
     min_gain_db: float = -20.0
@@ -180,6 +181,7 @@ _STAGE_KEYS = {
 _AGC_KEYS = {
     "enabled": ("enabled", "bool"),
     "reference_dbfs": ("reference_dbfs", "db"),
+    "carrier_filter_ms": ("carrier_filter_ms", "nonneg"),
     "attack_ms": ("attack_ms", "posfloat"),
     "release_ms": ("release_ms", "posfloat"),
     "hang_ms": ("hang_ms", "nonneg"),

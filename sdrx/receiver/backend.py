@@ -15,7 +15,10 @@ from ..dsp.agc import Agc
 from ..dsp.detectors import make_detector
 from ..dsp.resample import RationalResampler
 
-__all__ = ["Backend", "LevelMeter"]
+__all__ = ["Backend", "LevelMeter", "AGC_STEP"]
+
+#: samples of the channel rate per AGC control interval
+AGC_STEP = 64
 
 
 class LevelMeter:
@@ -77,13 +80,19 @@ class Backend:
     first_sample_ch : int
         Channel-rate index of the first sample in the whole capture (an
         excerpt's AGC control intervals stay on the whole run's grid).
+    freeze_ch : int
+        Samples at the start (of the receiver's pre-roll) during which the
+        AGC holds its start gain before it settles on the carrier.
+    skip_ch : int
+        Samples at the start (the pre-roll) left out of the level statistics.
     """
 
-    def __init__(self, design, fs_ch: float, agc_hold_gain_db=None, first_sample_ch: int = 0):
+    def __init__(self, design, fs_ch: float, agc_hold_gain_db=None, first_sample_ch: int = 0,
+                 freeze_ch: int = 0, skip_ch: int = 0):
         self.design = design
         self.fs_ch = fs_ch
         self.agc = Agc(design.agc, fs_ch, design.fixed_gain_db, design.agc_stage_gain_db, agc_hold_gain_db,
-                       grid_offset=first_sample_ch)
+                       step=AGC_STEP, grid_offset=first_sample_ch, freeze=freeze_ch, stats_from=skip_ch)
         self.detector = make_detector(design.detector, fs_ch)
         au = design.audio
         sos_hp = signal.butter(au.highpass_order, au.highpass_hz, btype="highpass", fs=fs_ch, output="sos")
@@ -93,6 +102,8 @@ class Backend:
         self.audio_gain = 10.0 ** (au.gain_db / 20.0)
         self.resampler = RationalResampler(fs_ch, au.rate_hz)
         self.meter = LevelMeter(fs_ch)
+        self._skip = int(skip_ch)   # samples still to leave out of the meter
+        self._n_seen = 0            # samples processed
 
     def process(self, u: np.ndarray, meter_n=None) -> np.ndarray:
         """IF output (complex envelope, ungained) -> audio samples.
@@ -103,11 +114,16 @@ class Backend:
         if len(u) == 0:
             return np.zeros(0)
         mag = np.abs(u)
-        ug, _ = self.agc.process(u, mag=mag, want_db=False)
         k = len(u) if meter_n is None else min(len(u), meter_n)
+        if k < len(u):
+            self.agc.end_stats(self._n_seen + k)
+        self._n_seen += len(u)
+        ug, _ = self.agc.process(u, mag=mag, want_db=False)
         env = np.abs(ug)   # the gained envelope: for the depth meter and the detector
-        if k:
-            self.meter.feed(mag[:k], env[:k])
+        j = min(self._skip, k)
+        self._skip -= min(self._skip, len(u))
+        if k > j:
+            self.meter.feed(mag[j:k], env[j:k])
         d = self.detector.process(ug, mag=env)
         a, self.zi_audio = signal.sosfilt(self.sos_audio, d, zi=self.zi_audio)
         return self.resampler.process(a * self.audio_gain)
