@@ -42,7 +42,7 @@ from ..units import format_frequency
 from ..dsp.channelizer import ChannelSpec, Channelizer, passband_window, plan_channelizer
 from ..dsp.discretize import matched_z
 
-__all__ = ["ExactFrontEnd", "choose_if_rate"]
+__all__ = ["ExactFrontEnd", "choose_if_rate", "resolve_if_rate"]
 
 TWO_PI = 2.0 * math.pi
 
@@ -75,6 +75,51 @@ def choose_if_rate(fs: float, band_top_hz: float, lo_hz: float, fs_ch: float = 9
                 and (u * 8192).denominator == 1):
             return float(rate)
     return float(step * j)  # pragma: no cover - a 5-smooth multiple always turns up
+
+
+def resolve_if_rate(design, plan, info, tune_hz: float, if_rate_hz=None) -> float:
+    """The IF sample rate of the exact path: ``if_rate_hz`` checked, or the automatic choice.
+
+    Raises
+    ------
+    ParameterError
+        A given rate that cannot hold the IF, the LO or every mixing product, or that is not a
+        usable multiple of the capture rate.
+    """
+    lo_band, hi_band = info.band_hz
+    f_lo = design.lo_hz(tune_hz)
+    if_hz = design.if_hz
+    top_product = hi_band + f_lo
+    if if_rate_hz is None:
+        fs_if = choose_if_rate(info.fs, hi_band, f_lo, plan.fs_ch)
+    else:
+        fs_if = float(if_rate_hz)
+        if if_hz >= fs_if / 2:
+            raise ParameterError(
+                f"--if-rate {format_frequency(fs_if)}: the IF {format_frequency(if_hz)} is above half the IF sample rate"
+            )
+        if f_lo >= fs_if / 2:
+            raise ParameterError(
+                f"--if-rate {format_frequency(fs_if)}: the LO {format_frequency(f_lo)} falls outside what "
+                f"that rate can represent (needs above {format_frequency(2 * f_lo)})"
+            )
+        if 2 * top_product >= fs_if:
+            raise ParameterError(
+                f"--if-rate {format_frequency(fs_if)}: too low to hold every mixing product of the captured band "
+                f"(needs above {format_frequency(2 * top_product)})"
+            )
+        # the RF synthesizer's segments need fs_if·512/fs whole, the IF channelizer a small
+        # ratio fs_if/fs_ch (the same conditions the automatic choice meets)
+        u = Fraction(fs_if).limit_denominator(1000) / Fraction(info.fs).limit_denominator(1000)
+        r_ch = (Fraction(fs_if).limit_denominator(1000)
+                / Fraction(plan.fs_ch).limit_denominator(1000)).limit_denominator(4096)
+        if (u * 512).denominator != 1 or r_ch.denominator > 512 or abs(float(u) * info.fs - fs_if) > 1e-6 * fs_if:
+            auto = choose_if_rate(info.fs, hi_band, f_lo, plan.fs_ch)
+            raise ParameterError(
+                f"--if-rate {fs_if:.10g}: not a usable IF sample rate for the capture rate {format_frequency(info.fs)} "
+                f"(use a multiple of {info.fs / 512:g} Hz, such as the automatic {auto:.10g})"
+            )
+    return fs_if
 
 
 class _RfSynthesizer:
@@ -184,39 +229,8 @@ class ExactFrontEnd:
     def __init__(self, design, plan, info, tune_hz, first_sample=0, if_rate_hz=None):
         self.design = design
         self.warnings: list = []
-        lo_band, hi_band = info.band_hz
+        fs_if = resolve_if_rate(design, plan, info, tune_hz, if_rate_hz)
         f_lo = design.lo_hz(tune_hz)
-        if_hz = design.if_hz
-        top_product = hi_band + f_lo
-        if if_rate_hz is None:
-            fs_if = choose_if_rate(info.fs, hi_band, f_lo, plan.fs_ch)
-        else:
-            fs_if = float(if_rate_hz)
-            if if_hz >= fs_if / 2:
-                raise ParameterError(
-                    f"--if-rate {format_frequency(fs_if)}: the IF {format_frequency(if_hz)} is above half the IF sample rate"
-                )
-            if f_lo >= fs_if / 2:
-                raise ParameterError(
-                    f"--if-rate {format_frequency(fs_if)}: the LO {format_frequency(f_lo)} falls outside what "
-                    f"that rate can represent (needs above {format_frequency(2 * f_lo)})"
-                )
-            if 2 * top_product >= fs_if:
-                raise ParameterError(
-                    f"--if-rate {format_frequency(fs_if)}: too low to hold every mixing product of the captured band "
-                    f"(needs above {format_frequency(2 * top_product)})"
-                )
-            # the RF synthesizer's segments need fs_if·512/fs whole, the IF channelizer a small
-            # ratio fs_if/fs_ch (the same conditions the automatic choice meets)
-            u = Fraction(fs_if).limit_denominator(1000) / Fraction(info.fs).limit_denominator(1000)
-            r_ch = (Fraction(fs_if).limit_denominator(1000)
-                    / Fraction(plan.fs_ch).limit_denominator(1000)).limit_denominator(4096)
-            if (u * 512).denominator != 1 or r_ch.denominator > 512 or abs(float(u) * info.fs - fs_if) > 1e-6 * fs_if:
-                auto = choose_if_rate(info.fs, hi_band, f_lo, plan.fs_ch)
-                raise ParameterError(
-                    f"--if-rate {fs_if:.10g}: not a usable IF sample rate for the capture rate {format_frequency(info.fs)} "
-                    f"(use a multiple of {info.fs / 512:g} Hz, such as the automatic {auto:.10g})"
-                )
         self.fs_if = fs_if
         self.f_lo = f_lo
         pre = design.preselector
@@ -256,7 +270,7 @@ class ExactFrontEnd:
         zdt = np.complex64 if self.quadrature else np.float32
         self.zi = np.zeros((self.sos.shape[0], 2), zdt)
         self.plan_if = plan_channelizer(fs_if, plan.fs_ch)
-        self.channelizer = Channelizer(self.plan_if, self.quadrature, [ChannelSpec(if_hz)],
+        self.channelizer = Channelizer(self.plan_if, self.quadrature, [ChannelSpec(design.if_hz)],
                                        first_sample=self._n_if, batch=8,
                                        dtype=np.complex64 if self.quadrature else np.float32)
         self._drop = self.plan_if.delay_out

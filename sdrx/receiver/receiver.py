@@ -14,8 +14,10 @@ import numpy as np
 from ..errors import ParameterError
 from ..units import db20, format_frequency
 from ..dsp.channelizer import plan_channelizer
+from ..dsp.agc import settle_window_s
 from ..dsp.detectors import diagonal_clipping_limit_s
-from .backend import Backend
+from . import preroll
+from .backend import AGC_STEP, Backend
 from .fast import FastFrontEnd, image_coverage
 
 __all__ = ["Receiver", "PATHS", "channel_rate"]
@@ -100,26 +102,78 @@ class Receiver:
             self.warnings.append(
                 f"image channel {format_frequency(design.image_hz(tune_hz))} lies partly outside the capture"
             )
+        self._if_rate = None
+        if path == "exact":
+            from .exact import resolve_if_rate
+
+            self._if_rate = resolve_if_rate(design, self.plan, info, tune_hz, if_rate_hz)
+        self._plan_preroll(first_sample)
+        start = first_sample - self._pre_n      # the front end starts with the pre-roll
         if path == "fast":
-            self.front = FastFrontEnd(design, self.plan, info.kind, info.center_hz, (lo, hi), tune_hz, first_sample)
+            self.front = FastFrontEnd(design, self.plan, info.kind, info.center_hz, (lo, hi), tune_hz, start)
         else:
             from .exact import ExactFrontEnd
 
-            self.front = ExactFrontEnd(design, self.plan, info, tune_hz, first_sample, if_rate_hz)
+            self.front = ExactFrontEnd(design, self.plan, info, tune_hz, start, self._if_rate)
             self.warnings.extend(self.front.warnings)
         # the excerpt's first sample on the channel-rate grid of the whole capture (nearest sample
-        # when the excerpt starts between two)
-        first_ch = int(round(first_sample * self.fs_ch / info.fs))
-        self.backend = Backend(design, self.fs_ch, agc_hold_gain_db, first_ch)
+        # when the excerpt starts between two), less the pre-roll
+        first_ch = int(round(first_sample * self.fs_ch / info.fs)) - self._pre_ch
+        self.backend = Backend(design, self.fs_ch, agc_hold_gain_db, first_ch, freeze_ch=self._freeze_ch,
+                               skip_ch=self._pre_ch)
         self.audio_fs = float(design.audio.rate_hz)
         self._ref = float(abs(design.rf_response(tune_hz, tune_hz)[0]))
         self._n_in = 0
         self._n_out = 0
-        self._drop = self.backend.resampler.delay_out
+        self._drop = self.backend.resampler.delay_out + self._pre_audio
         self._flushed = False
+        self._head = []        # the capture's first samples, kept until the carriers are estimated
+        self._head_n = 0
+        self._started = False
         self._n_u = 0          # channel-rate samples passed to the backend
         self._pool = None      # worker thread for the fast path's front end
         self._pending = None   # its output for the previous block
+
+    def _plan_preroll(self, first_sample: int) -> None:
+        """Size the pre-roll (see :mod:`.preroll`) on the capture, channel and audio grids."""
+        design, fs = self.design, self.info.fs
+        zpk = design.preselector.zpk(self.tune_hz)
+        # the same for both paths (so that they start alike): the channelizer, the preselector, and
+        # 2 ms for the exact path's RF synthesis and IF channelizer (about a millisecond each)
+        front_s = self.plan.overlap / fs + (preroll._slowest_decay_s(zpk[1]) if zpk is not None else 0.0) + 2e-3
+        hold_s, settle_s = preroll.preroll_seconds(design, front_s)
+        hold_s += settle_window_s(design.agc) + AGC_STEP / self.fs_ch
+        rates = [self.fs_ch, design.audio.rate_hz] + ([self._if_rate] if self._if_rate else [])
+        self._pre_n = preroll.preroll_samples(hold_s + settle_s + AGC_STEP / self.fs_ch, fs, *rates)
+        self._pre_ch = int(round(self._pre_n * self.fs_ch / fs))
+        self._pre_audio = int(round(self._pre_n * design.audio.rate_hz / fs))
+        self._freeze_ch = int(math.ceil(hold_s * self.fs_ch))
+        self._estimate_n = max(16, int(round(preroll.ESTIMATE_S * fs)))
+
+    def _carrier_windows(self):
+        """The frequency ranges the channels take from the capture, in its own frequency axis."""
+        off = 0.0 if self.info.kind == "real" else self.info.center_hz
+        half = self.plan.f_stop_hz
+        centres = [self.tune_hz]
+        if image_coverage(self.design.image_hz(self.tune_hz), self.info.band_hz, self.plan) != "outside":
+            centres.append(self.design.image_hz(self.tune_hz))
+        return [(f - off - half, f - off + half) for f in centres]
+
+    def _start(self) -> np.ndarray:
+        """Estimate the carriers from the first samples and run the pre-roll; returns the audio it leaves
+        (nothing: the pre-roll's audio is dropped) after the head samples are fed."""
+        self._started = True
+        head = np.concatenate(self._head) if self._head else np.zeros(0)
+        self._head = []
+        is_complex = self.info.kind != "real"
+        carriers = preroll.estimate_carriers(head[:self._estimate_n], self.info.fs, is_complex,
+                                             self._carrier_windows())
+        history = preroll.carrier_history(carriers, self._pre_n, self.info.fs, is_complex)
+        dtype = np.complex64 if is_complex else np.float32
+        out = [self._feed(history.astype(dtype))]
+        if len(head):
+            out.append(self._feed(head))
+        return np.concatenate(out)
 
     @property
     def delay_s(self) -> float:
@@ -158,6 +212,14 @@ class Receiver:
         if self._flushed:
             raise RuntimeError("Receiver already flushed")
         self._n_in += len(block)
+        if not self._started:
+            self._head.append(np.array(block))
+            self._head_n += len(block)
+            return self._start() if self._head_n >= self._estimate_n else np.zeros(0)
+        return self._feed(block)
+
+    def _feed(self, block: np.ndarray) -> np.ndarray:
+        """Capture samples (or pre-roll) through the front end and the back end."""
         if self.path != "fast":
             return self._out(self._back(self.front.process(block)))
         if self._pool is None:
@@ -171,10 +233,10 @@ class Receiver:
 
     def flush(self) -> np.ndarray:
         """End of input: return the remaining audio, so that the total is duration × audio rate."""
+        head = self._start() if not self._started else np.zeros(0)
         self._flushed = True
-        head = np.zeros(0)
         if self._pending is not None:
-            head = self._out(self._back(self._pending))
+            head = np.concatenate([head, self._out(self._back(self._pending))])
             self._pending = None
         if self._pool is not None:
             self._pool.shutdown(wait=True)
@@ -182,7 +244,7 @@ class Receiver:
         target = int(math.floor(self._n_in * self.audio_fs / self.info.fs + 1e-9))
         # the front end's tail runs past the input (zero padding, so the filters ring down as
         # after a real end of signal); the level statistics count only the input's duration
-        n_ch = int(math.ceil(self._n_in * self.fs_ch / self.info.fs - 1e-9))
+        n_ch = self._pre_ch + int(math.ceil(self._n_in * self.fs_ch / self.info.fs - 1e-9))
         tail_u = self.front.flush()
         parts = [head, self._out(self._back(tail_u, meter_n=max(0, n_ch - self._n_u))),
                  self._out(self.backend.flush())]

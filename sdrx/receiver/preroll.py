@@ -1,0 +1,207 @@
+"""A clean start: the receiver is already tuned to the station when the capture begins.
+
+A chain that starts from rest meets the first sample as a step: the carrier
+switching on rings through the channel and IF filters, the AGC sees a level
+that is still rising, and the audio high-pass starts from zero against the
+detector's DC, a loud thump at the head of every output. A receiver that
+had been on before the recording started shows none of this.
+
+So the receiver runs a *pre-roll* first: the carriers present at the start
+of the capture, continued backwards in time with their frequency, amplitude
+and phase, fed through the whole chain and its output discarded. Every stage
+is then in its steady state for the carriers when the real samples arrive,
+and the carriers run on without a break in phase:
+
+1. :func:`estimate_carriers` finds the carriers near the channels the
+   receiver cuts out (the wanted and the image channel) in the first
+   ``ESTIMATE_S`` of the capture: peaks of a Blackman-windowed, zero-padded
+   spectrum, the frequency refined by parabolic interpolation of the log
+   spectrum, the complex amplitude by the windowed DTFT at that frequency
+   (Harris, "On the use of windows for harmonic analysis with the discrete
+   Fourier transform", Proc. IEEE 66(1), 1978: the Blackman window's side
+   lobes, −58 dB, keep the programme's sidebands and the neighbours out).
+2. :func:`carrier_history` renders them for the samples before the start.
+3. :func:`preroll_seconds` sizes the pre-roll from the chain itself: the
+   slowest pole of the IF stages (while the AGC holds its gain), then the
+   slowest pole of the audio filters and the detector's own settling (after
+   the AGC has settled on the carrier), each to −100 dB.
+
+Programme, noise and stations away from the channels are not continued:
+they start at the first sample as they would when a transmitter switches on,
+which through the chain's filters is no click.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from fractions import Fraction
+
+import numpy as np
+from scipy import signal
+
+__all__ = ["Carrier", "estimate_carriers", "carrier_history", "preroll_seconds", "preroll_samples",
+           "ESTIMATE_S"]
+
+#: how much of the capture's start the carriers are estimated from, s
+ESTIMATE_S = 0.08
+#: decay each stage is given before the next stage's settling starts: −100 dB
+_SETTLE_NEPERS = math.log(1e5)
+_PEAK_DB = 20.0          # a carrier stands this far over the median of its window
+_RANGE_DB = 100.0        # and within this much of the strongest one (the window's side lobes are not carriers)
+_MAX_PER_WINDOW = 24
+
+
+@dataclass(frozen=True)
+class Carrier:
+    """A steady carrier: x[n] = amplitude · exp(j2π·f·(n − first)/fs) (I/Q), or its real part ×1 (real)."""
+
+    freq_hz: float          # in the capture's own frequency axis (offset from the centre for I/Q)
+    amplitude: complex      # complex amplitude at the first sample
+
+
+def _window_peaks(p_db: np.ndarray, lo: int, hi: int, halfwidth: int):
+    """Bins of local maxima in p_db[lo:hi] standing _PEAK_DB over the window's median."""
+    seg = p_db[lo:hi]
+    if len(seg) < 3:
+        return []
+    floor = float(np.median(seg))
+    big = signal.argrelmax(seg, order=halfwidth, mode="clip")[0]
+    big = [k for k in big if seg[k] > floor + _PEAK_DB and 0 < k < len(seg) - 1]
+    big.sort(key=lambda k: -seg[k])
+    return [lo + k for k in big[:_MAX_PER_WINDOW]]
+
+
+def estimate_carriers(x: np.ndarray, fs: float, is_complex: bool, windows_hz) -> list:
+    """Steady carriers in x (the capture's first samples) inside the given frequency windows.
+
+    Parameters
+    ----------
+    x : ndarray
+        The first samples (I/Q complex, or real).
+    fs : float
+        Sample rate, Hz.
+    is_complex : bool
+    windows_hz : sequence of (low, high)
+        Frequency ranges to search, in the capture's frequency axis.
+
+    Returns
+    -------
+    list of Carrier
+
+    Examples
+    --------
+    >>> fs = 48000.0
+    >>> n = np.arange(4800)
+    >>> x = 0.1 * np.exp(1j * (2 * np.pi * 1234.5 * n / fs + 0.3))
+    >>> c = estimate_carriers(x, fs, True, [(0.0, 5000.0)])
+    >>> round(c[0].freq_hz, 2), round(abs(c[0].amplitude), 4), round(float(np.angle(c[0].amplitude)), 3)
+    (1234.5, 0.1, 0.3)
+    """
+    n = len(x)
+    if n < 16:
+        return []
+    x = np.asarray(x, np.complex128 if is_complex else np.float64)
+    w = np.blackman(n)
+    nfft = 1 << int(math.ceil(math.log2(4 * n)))
+    X = np.fft.fft(w * x, nfft)
+    p_db = 10.0 * np.log10(np.abs(X) ** 2 + 1e-300)
+    freqs = np.fft.fftfreq(nfft, 1.0 / fs)
+    order = np.argsort(freqs)
+    p_db, freqs = p_db[order], freqs[order]
+    halfwidth = max(2, int(round(3.0 * nfft / n)))   # the Blackman main lobe: ±3 bins of the unpadded DFT
+    found = set()
+    for lo_hz, hi_hz in windows_hz:
+        if not is_complex:
+            lo_hz, hi_hz = max(lo_hz, 0.0), hi_hz
+        lo, hi = np.searchsorted(freqs, [lo_hz, hi_hz])
+        found.update(_window_peaks(p_db, int(lo), int(hi), halfwidth))
+    if found:
+        top = max(p_db[k] for k in found)
+        found = {k for k in found if p_db[k] > top - _RANGE_DB}
+    carriers = []
+    t = np.arange(n) / fs
+    gain = np.sum(w) * (1.0 if is_complex else 0.5)
+    for k in sorted(found):
+        a, b, c = p_db[k - 1], p_db[k], p_db[k + 1]
+        den = a - 2 * b + c
+        delta = 0.5 * (a - c) / den if den < 0 else 0.0
+        f = float(freqs[k] + delta * fs / nfft)
+        amp = complex(np.sum(w * x * np.exp(-2j * np.pi * f * t)) / gain)
+        carriers.append(Carrier(f, amp))
+    return carriers
+
+
+def carrier_history(carriers, count: int, fs: float, is_complex: bool) -> np.ndarray:
+    """The carriers over the ``count`` samples before the first one (indices −count … −1).
+
+    Examples
+    --------
+    >>> h = carrier_history([Carrier(1000.0, 1.0 + 0j)], 4, 8000.0, True)
+    >>> np.round(h, 3).tolist()
+    [(-1-0j), (-0.707-0.707j), -1j, (0.707-0.707j)]
+    """
+    n = np.arange(-count, 0, dtype=np.float64)
+    out = np.zeros(count, complex)
+    for c in carriers:
+        out += c.amplitude * np.exp(2j * np.pi * c.freq_hz * n / fs)
+    return out if is_complex else out.real.copy()
+
+
+def _slowest_decay_s(poles_rad_s) -> float:
+    """Time for the slowest of these analog poles to decay by 100 dB (0 when there are none)."""
+    p = np.asarray(poles_rad_s, complex)
+    sigma = -p.real[p.real < 0]
+    return float(_SETTLE_NEPERS / sigma.min()) if len(sigma) else 0.0
+
+
+def _audio_poles(audio) -> np.ndarray:
+    hp = signal.butter(audio.highpass_order, 2 * math.pi * audio.highpass_hz, "highpass", analog=True, output="zpk")[1]
+    lp = signal.butter(audio.lowpass_order, 2 * math.pi * audio.lowpass_hz, analog=True, output="zpk")[1]
+    return np.concatenate([hp, lp])
+
+
+def _detector_settle_s(det) -> float:
+    if det.kind == "diode":
+        return _SETTLE_NEPERS * det.rc_us * 1e-6
+    if det.kind == "synchronous":
+        # pull-in of the carrier loop from any phase: some ten periods of its bandwidth (common practice)
+        return 10.0 / det.pll_bandwidth_hz
+    return 0.0
+
+
+def preroll_seconds(design, front_s: float = 0.0) -> tuple:
+    """(hold_s, settle_s): the pre-roll's two parts for this chain.
+
+    ``hold_s`` covers the front end's own filters (``front_s``) and the IF
+    stages' slowest pole; the AGC holds its gain meanwhile and then settles on
+    the carrier. ``settle_s`` then lets the audio filters and the detector
+    settle at the new gain.
+
+    Examples
+    --------
+    >>> from sdrx.chain import design_chain
+    >>> hold, settle = preroll_seconds(design_chain("medium"))
+    >>> 0.0001 < hold < 0.01, 0.02 < settle < 0.1
+    (True, True)
+    """
+    if_poles = np.concatenate([st.p for st in design.stages]) if design.stages else np.zeros(0)
+    hold = front_s + _slowest_decay_s(if_poles)
+    settle = _slowest_decay_s(_audio_poles(design.audio)) + _detector_settle_s(design.detector)
+    return hold, settle
+
+
+def preroll_samples(seconds: float, fs: float, *other_rates: float) -> int:
+    """Smallest count ≥ seconds·fs whose duration is a whole number of samples at every other rate too.
+
+    Examples
+    --------
+    >>> preroll_samples(0.01, 2.4e6, 96e3, 48e3)   # a multiple of 50 samples
+    24000
+    """
+    grid = 1
+    for r in other_rates:
+        fr = (Fraction(r).limit_denominator(1000) / Fraction(fs).limit_denominator(1000))
+        grid = grid * fr.denominator // math.gcd(grid, fr.denominator)
+    n = int(math.ceil(seconds * fs - 1e-9))
+    return grid * int(math.ceil(n / grid))
