@@ -107,7 +107,7 @@ def _prefetch(blocks, depth: int = 2):
 def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, path: str = "fast",
             start_s=0.0, duration_s=None, float_output: bool = False, force: bool = False,
             progress=None, datatype=None, fs=None, center_hz=None, block_size=None,
-            if_rate_hz=None) -> dict:
+            if_rate_hz=None, spacing_hz=10e3) -> dict:
     """Receive one station from a capture through a chain; write the audio.
 
     Parameters
@@ -132,6 +132,8 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
         For raw files and I/Q WAV (see :func:`sdrx.capture.open_capture`).
     if_rate_hz : float, optional
         Exact path: IF sample rate (default automatic).
+    spacing_hz : float or str
+        Channel spacing for the adjacent-channel checks ("9k", "10k").
 
     Returns
     -------
@@ -161,7 +163,8 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
     if_rate = None if if_rate_hz is None else parse_frequency(if_rate_hz, "--if-rate")
     if if_rate is not None and path != "exact":
         raise ParameterError("--if-rate: only the exact path has an IF sample rate (add --path exact)")
-    rx = Receiver(design, info, tune, path=path, first_sample=first, if_rate_hz=if_rate)
+    spacing = parse_frequency(spacing_hz, "--spacing")
+    rx = Receiver(design, info, tune, path=path, first_sample=first, if_rate_hz=if_rate, spacing_hz=spacing)
     audio_fs = rx.audio_fs
     expected = int(math.floor(count * audio_fs / info.fs + 1e-9))
     with AudioWriter(out, audio_fs, float_output=float_output, expected_samples=expected, force=force,
@@ -191,6 +194,7 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
         "carrier_dbfs": _round(st["carrier_dbfs"]),
         "agc_gain_db": _round(st["agc_gain_db"]),
         "clipped_samples": int(clipped),
+        "checks": rx.checks,
         "warnings": list(rx.warnings),
     }
     if path == "exact":

@@ -28,6 +28,8 @@ def _list_chains(ctx, _param, value):
 @click.option("--summary", "summary", type=click.Path(dir_okay=False), default=None, help="Write the run summary JSON here.")
 @click.option("--path", "path", type=click.Choice(["fast", "exact"]), default="fast", show_default=True,
               help="fast: complex-envelope equivalent; exact: a real IF at an IF sample rate.")
+@click.option("--spacing", default="10k", show_default=True, metavar="F",
+              help="Channel spacing for the adjacent-channel checks (9k or 10k at MF).")
 @click.option("--if-rate", default=None, metavar="HZ", help="Exact path: IF sample rate (default: chosen automatically).")
 @click.option("--float", "float_output", is_flag=True, help="Write 32-bit float WAV instead of 16-bit PCM.")
 @click.option("--force", is_flag=True, help="Replace existing outputs.")
@@ -35,7 +37,7 @@ def _list_chains(ctx, _param, value):
 @click.option("--list-chains", is_flag=True, expose_value=False, is_eager=True, callback=_list_chains,
               help="List the shipped chain presets and exit.")
 @capture_options
-def command(capture, tune, chain, out, summary, path, if_rate, float_output, force, quiet,
+def command(capture, tune, chain, out, summary, path, spacing, if_rate, float_output, force, quiet,
             datatype, rate, center, start, duration):
     """Receive one station of CAPTURE through a superheterodyne chain; write its audio.
 
@@ -49,7 +51,7 @@ def command(capture, tune, chain, out, summary, path, if_rate, float_output, for
     try:
         s = receive(capture, tune, chain, out, summary_path=summary, path=path, start_s=start,
                     duration_s=duration, float_output=float_output, force=force, progress=bar,
-                    datatype=datatype, fs=rate, center_hz=center, if_rate_hz=if_rate)
+                    datatype=datatype, fs=rate, center_hz=center, if_rate_hz=if_rate, spacing_hz=spacing)
     finally:
         if bar is not None:
             bar.close()

@@ -55,9 +55,13 @@ class FastFrontEnd:
     band_hz : (float, float)
     tune_hz : float
     first_sample : int
+    extra : sequence of ChannelSpec
+        More channels to cut from the capture in the same pass (the receiver's monitor).
+    on_extra : callable, optional
+        Receives the extra channels' outputs, a list in the order of ``extra``.
     """
 
-    def __init__(self, design, plan, kind, center_hz, band_hz, tune_hz, first_sample=0):
+    def __init__(self, design, plan, kind, center_hz, band_hz, tune_hz, first_sample=0, extra=(), on_extra=None):
         self.design = design
         self.plan = plan
         fs_ch = plan.fs_ch
@@ -105,7 +109,9 @@ class FastFrontEnd:
         if cover != "outside":
             chans.append(ChannelSpec(f_im - off, resp_v))
         self.has_image = len(chans) == 2
-        self.channelizer = Channelizer(plan, kind == "iq", chans, first_sample=first_sample)
+        self._n_own = len(chans)
+        self._on_extra = on_extra
+        self.channelizer = Channelizer(plan, kind == "iq", chans + list(extra), first_sample=first_sample)
         self._drop = plan.delay_out  # FIR centring delay, removed once
 
     def _combine(self, outs):
@@ -121,11 +127,16 @@ class FastFrontEnd:
         y, self.zi = signal.sosfilt(self.sos, u, zi=self.zi)
         return y
 
+    def _split(self, outs):
+        if self._on_extra is not None and len(outs) > self._n_own:
+            self._on_extra(outs[self._n_own:])
+        return self._combine(outs[:self._n_own])
+
     def process(self, x):
-        return self._combine(self.channelizer.process(x))
+        return self._split(self.channelizer.process(x))
 
     def flush(self):
         z = np.zeros(self.plan.overlap, self.channelizer.dtype)
-        a = self._combine(self.channelizer.process(z))
-        b = self._combine(self.channelizer.flush())
+        a = self._split(self.channelizer.process(z))
+        b = self._split(self.channelizer.flush())
         return np.concatenate([a, b])

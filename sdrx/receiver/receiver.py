@@ -13,12 +13,13 @@ import numpy as np
 
 from ..errors import ParameterError
 from ..units import db20, format_frequency
-from ..dsp.channelizer import plan_channelizer
+from ..dsp.channelizer import Channelizer, plan_channelizer
 from ..dsp.agc import settle_window_s
 from ..dsp.detectors import diagonal_clipping_limit_s
 from . import preroll
 from .backend import AGC_STEP, Backend
 from .fast import FastFrontEnd, image_coverage
+from .monitor import ChannelMonitor
 
 __all__ = ["Receiver", "PATHS", "channel_rate"]
 
@@ -56,6 +57,8 @@ class Receiver:
     if_rate_hz : float, optional
         Exact path only: the IF sample rate (default: chosen to hold every
         mixing product of the captured band).
+    spacing_hz : float
+        Channel spacing, for the adjacent-channel checks (10 kHz: ITU Region 2).
 
     Raises
     ------
@@ -64,7 +67,7 @@ class Receiver:
     """
 
     def __init__(self, design, info, tune_hz: float, path: str = "fast", agc_hold_gain_db=None,
-                 first_sample: int = 0, if_rate_hz=None):
+                 first_sample: int = 0, if_rate_hz=None, spacing_hz: float = 10e3):
         if path not in PATHS:
             raise ParameterError(f"--path {path!r}: choose one of {', '.join(PATHS)}")
         self.design = design
@@ -109,13 +112,20 @@ class Receiver:
             self._if_rate = resolve_if_rate(design, self.plan, info, tune_hz, if_rate_hz)
         self._plan_preroll(first_sample)
         start = first_sample - self._pre_n      # the front end starts with the pre-roll
+        self.monitor = ChannelMonitor(design, tune_hz, cover != "outside",
+                                      0.0 if info.kind == "real" else info.center_hz, self.fs_ch, spacing_hz,
+                                      self.plan.f_pass_hz, skip=self._pre_ch + self.plan.delay_out)
+        self.checks = None      # the monitor's checks, once the run is complete
+        self._monitor_ch = None
         if path == "fast":
-            self.front = FastFrontEnd(design, self.plan, info.kind, info.center_hz, (lo, hi), tune_hz, start)
+            self.front = FastFrontEnd(design, self.plan, info.kind, info.center_hz, (lo, hi), tune_hz, start,
+                                      extra=self.monitor.specs, on_extra=self.monitor.feed)
         else:
             from .exact import ExactFrontEnd
 
             self.front = ExactFrontEnd(design, self.plan, info, tune_hz, start, self._if_rate)
             self.warnings.extend(self.front.warnings)
+            self._monitor_ch = Channelizer(self.plan, info.kind != "real", self.monitor.specs, first_sample=start)
         # the excerpt's first sample on the channel-rate grid of the whole capture (nearest sample
         # when the excerpt starts between two), less the pre-roll
         first_ch = int(round(first_sample * self.fs_ch / info.fs)) - self._pre_ch
@@ -221,6 +231,7 @@ class Receiver:
     def _feed(self, block: np.ndarray) -> np.ndarray:
         """Capture samples (or pre-roll) through the front end and the back end."""
         if self.path != "fast":
+            self.monitor.feed(self._monitor_ch.process(block))
             return self._out(self._back(self.front.process(block)))
         if self._pool is None:
             from concurrent.futures import ThreadPoolExecutor
@@ -244,7 +255,11 @@ class Receiver:
         target = int(math.floor(self._n_in * self.audio_fs / self.info.fs + 1e-9))
         # the front end's tail runs past the input (zero padding, so the filters ring down as
         # after a real end of signal); the level statistics count only the input's duration
-        n_ch = self._pre_ch + int(math.ceil(self._n_in * self.fs_ch / self.info.fs - 1e-9))
+        n_data_ch = int(math.ceil(self._n_in * self.fs_ch / self.info.fs - 1e-9))
+        n_ch = self._pre_ch + n_data_ch
+        self.monitor.end_at(n_data_ch)
+        if self._monitor_ch is not None:
+            self.monitor.feed(self._monitor_ch.process(np.zeros(self.plan.overlap, self._monitor_ch.dtype)))
         tail_u = self.front.flush()
         parts = [head, self._out(self._back(tail_u, meter_n=max(0, n_ch - self._n_u))),
                  self._out(self.backend.flush())]
@@ -268,6 +283,8 @@ class Receiver:
             close()
 
     def _finish_warnings(self) -> None:
+        self.checks = self.monitor.checks()
+        self.warnings.extend(self.monitor.warnings(self.checks))
         det = self.design.detector
         depths = self.backend.meter.depths
         if len(depths) > 1:
