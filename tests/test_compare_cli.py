@@ -144,7 +144,15 @@ def test_whole_run_on_two_presets(capture, tmp_path, capsys):
     # the 1 kHz tone station (truth sidecar): the narrow chain keeps the neighbour's noise out
     assert narrow["sinad_db"] > res["specs"][0]["sinad_db"] + 10
     assert narrow["adjacent_rejection_db"]["worst"] > res["specs"][0]["adjacent_rejection_db"]["worst"]
+    # what each receiver heard: the neighbour (-10 dB, +10 kHz) reaches the wide chain's detector far
+    # more than the narrow one's, by the designs' difference in rejection there (±1 dB: line powers)
+    leaks = [s["receive"]["checks"]["adjacent_leak_db"]["10000"] for s in res["specs"]]
+    rej = [s["adjacent_rejection_db"]["upper"] for s in res["specs"]]
+    assert leaks[0] - leaks[1] == pytest.approx(rej[1] - rej[0], abs=1.0)
     page = (out / "index.html").read_text()
+    assert "adjacent at the detector (±10 kHz), lower / upper" in page
+    assert f"{leaks[0]:+.1f} dB" in page and f"{leaks[1]:+.1f} dB" in page
+    assert "reaches the detector" in page          # the wide chain's warning, in words
     key = json.loads((out / "blind-key.json").read_text())
     assert [t["trial"] for t in key["trials"]] == [1, 2, 3, 4, 5]
     for t in key["trials"]:

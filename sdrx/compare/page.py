@@ -234,6 +234,27 @@ _JS = r"""
 """
 
 
+def _check(spec: dict, key: str):
+    """One of the receiver's checks for this chain (None when the run gave none)."""
+    return ((spec.get("receive") or {}).get("checks") or {}).get(key)
+
+
+def _adjacent(spec: dict, sign: int):
+    """The ±1-channel adjacent check for this chain."""
+    leaks = _check(spec, "adjacent_leak_db") or {}
+    spacing = _check(spec, "spacing_hz")
+    return leaks.get(str(int(round(sign * spacing)))) if spacing else None
+
+
+def _warning_list(specs: list) -> str:
+    """What each chain's receiver warned about, in words."""
+    items = []
+    for s in specs:
+        for w in (s.get("receive") or {}).get("warnings", []):
+            items.append(f"<li><b>{_e(s['label'])}</b>: {_e(w)}</li>")
+    return f'<ul class="warnings">{"".join(items)}</ul>' if items else ""
+
+
 def _figure_rows(specs: list, spacing_hz: float | None) -> str:
     sp = f" (±{spacing_hz / 1e3:g} kHz)" if spacing_hz else ""
     rows = [
@@ -250,6 +271,11 @@ def _figure_rows(specs: list, spacing_hz: float | None) -> str:
                                        + (f" at {_e(format_frequency(s['image_hz']))}" if s.get("image_hz") else ""))),
         ("audio bandwidth (−20 dB re 300 Hz–1 kHz)", lambda s: _khz(s.get("audio_bandwidth_hz"))),
         ("SINAD (truth sidecar tone)", lambda s: _num(s.get("sinad_db"), ".1f", " dB")),
+        ("carrier over the channel noise", lambda s: _num(_check(s, "carrier_snr_db"), ".1f", " dB")),
+        ("image at the detector, re carrier", lambda s: _num(_check(s, "image_leak_db"), "+.1f", " dB")),
+        ("adjacent at the detector" + sp + ", lower / upper",
+         lambda s: " / ".join(_num(_adjacent(s, sign), "+.1f", " dB") for sign in (-1, 1))),
+        ("carrier offset from the tune", lambda s: _num(_check(s, "tuning_error_hz"), "+.0f", " Hz")),
         ("loudness before matching", lambda s: _num(s.get("loudness_lufs_before"), ".1f", " LUFS")),
         ("loudness gain applied", lambda s: _num(s.get("gain_db"), "+.2f", " dB")),
         ("delay removed (re first)", lambda s: _num(s.get("delay_ms"), ".3f", " ms")),
@@ -359,7 +385,11 @@ def render_page(model: dict) -> str:
     parts.append('<p class="hint">Bandwidths and rejections are of the designed chain (single-signal '
                  "response, AGC off). Audio bandwidth: where the output's long-term spectrum falls 20 dB "
                  "below its mean level over 300 Hz–1 kHz. SINAD: only when the capture's truth sidecar gives "
-                 "the station a single tone.</p>")
+                 "the station a single tone. At the detector: what the receiver measured while it ran (the "
+                 "carrier over the noise around the channel in the chain's noise bandwidth; the image and "
+                 "adjacent carriers after the chain's response, against the wanted carrier; the carrier's "
+                 "offset from the tune).</p>")
+    parts.append(_warning_list(specs))
     if model.get("plot_png"):
         b64 = base64.b64encode(model["plot_png"]).decode("ascii")
         parts.append(f'<img class="plot" alt="selectivity of each chain" src="data:image/png;base64,{b64}">')

@@ -428,7 +428,7 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
             wav = Path(tmpdir) / f"{i}.wav"
             summary = receive(capture, tune, d, wav, path=path, start_s=rx_start, duration_s=rx_duration,
                               float_output=True, force=True, progress=sub if progress else None,
-                              datatype=datatype, fs=fs, center_hz=center_hz)
+                              datatype=datatype, fs=fs, center_hz=center_hz, spacing_hz=spacing)
             audio, afs = sf.read(str(wav), dtype="float64", always_2d=False)
             if audio.ndim != 1:
                 audio = audio[:, 0]
@@ -550,7 +550,7 @@ def write_comparison(out_dir, choices, designs, raw, rates, *, plan, tune_hz: fl
             "sinad_db": _finite_or_none(sinad_db(cut[i], audio_fs, tone_hz)) if tone_hz else None,
             # compare takes the receiver's float output and re-levels it, so its clipping count
             # (of the 16-bit scale, mostly in the start-up left out) does not apply
-            "receive": {k: s.get(k) for k in ("lo_hz", "if_hz", "image_hz", "carrier_dbfs", "agc_gain_db")
+            "receive": {k: s.get(k) for k in ("lo_hz", "if_hz", "image_hz", "carrier_dbfs", "agc_gain_db", "checks")
                         if k in s} | {"warnings": [w for w in s.get("warnings", [])
                                                    if "clipped at full scale" not in w]},
         }
