@@ -3,12 +3,8 @@
 The gain trace is read from the receiver's AGC (``rx.backend.agc.trace``
 keeps the total gain in dB per channel-rate sample); levels are stepped in
 the capture itself. Expected trajectories come from the model the AGC
-documents (sdrx/dsp/agc.py), solved here independently as a differential
-equation with scipy.integrate: the carrier filter 1/(1 + sτ_f)² on the
-envelope, then the gain approaching reference − level with time constant
-τ = attack or release:
-
-    dg/dt = (reference − L(t) − g)/τ
+documents (sdrx/dsp/agc.py), solved independently as a differential
+equation (tests/helpers_agc.py).
 """
 
 from __future__ import annotations
@@ -17,13 +13,14 @@ import math
 
 import numpy as np
 import pytest
-from scipy import integrate, signal
+from scipy import signal
 
 from sdrx.chain import design_chain
 from sdrx.chain.spec import AgcSpec
 from sdrx.dsp.agc import Agc, carrier_filter_sos
 from sdrx.receiver import Receiver
 
+from helpers_agc import agc_model_step
 from helpers_rx import am_station, carrier, iq_info, run_receiver, sine_fit
 
 FS = 240e3
@@ -95,21 +92,9 @@ def test_step_response_follows_the_documented_model(before, after):
     ref = d.agc.reference_dbfs - d.fixed_gain_db
     # the loop acts once per 0.67 ms control interval and sees the level a little later than the
     # continuous model: within 0.35 dB of the model all along a 20 dB step (measured 0.25 dB)
-    err = np.abs(g[k:] - _model_from_settled(t[k:] - t[k], before + h_db, after + h_db, g[k - 1], ref))
+    err = np.abs(g[k:] - agc_model_step(t[k:] - t[k], before + h_db, after + h_db, g[k - 1], ref, 10e-3, 20e-3, 60e-3))
     assert err.max() < 0.35, err.max()
     assert g[-1] == pytest.approx(ref - (after + h_db), abs=0.02)   # settled: 10 release times after the step
-
-
-def _model_from_settled(t, level0_db, level1_db, g0, ref):
-    """The model after a step from a settled state (filter holding level0, gain g0)."""
-    a0, a1 = 10 ** (level0_db / 20), 10 ** (level1_db / 20)
-
-    def rhs(tt, y):
-        f1, f2, g = y
-        e = ref - (20 * math.log10(f2) + g)
-        return [(a1 - f1) / 1e-2, (f1 - f2) / 1e-2, e / (20e-3 if e < 0 else 60e-3)]
-    sol = integrate.solve_ivp(rhs, (t[0], t[-1]), [a0, a0, g0], t_eval=t, max_step=2e-4, rtol=1e-8, atol=1e-10)
-    return sol.y[2]
 
 
 def test_hang_holds_the_gain_before_release():

@@ -21,6 +21,7 @@ from ..errors import OutputError, ParameterError
 from ..fileio import atomic_path, check_output
 from ..units import format_frequency
 from ..analysis import selectivity as sel
+from ..analysis.agc_figures import measure_agc
 
 __all__ = ["Report", "build_report", "write_report", "report_files", "GROUP_DELAY_METHOD"]
 
@@ -217,6 +218,7 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
         meas["path"] = path
         meas["method_detail"] = MEASURE_METHOD
         meas["difference"] = _difference(meas, des, dres)
+        meas["agc"] = measure_agc(design, tune, path)
 
     lo_hz = design.lo_hz(tune)
     image = design.image_hz(tune)
@@ -246,6 +248,10 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
     figs["image.png"] = plots.image_png(des["response"], mresp, image - tune, spacing, des["image_rejection_db"],
                                         title=f"Image region ({format_frequency(image)}) - {title}")
     figs["group_delay.png"] = plots.group_delay_png(gd_offs, gd, e3, title=f"Group delay - {title}")
+    if meas:
+        a = meas["agc"]
+        figs["agc.png"] = plots.agc_png(a["characteristic"], a["range_db"], a["range_dbfs"], a["reference_dbfs"],
+                                        title=f"AGC characteristic - {title}")
 
     if reader is not None:
         from .spectrum import capture_spectrum

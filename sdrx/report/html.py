@@ -135,6 +135,25 @@ def _carrier_table(data):
             "frequency (relative to a carrier at the tune, i.e. with the chain's gain at the tune taken as 0 dB).</p>")
 
 
+def _agc_section(d, figures) -> str:
+    """The measured AGC: characteristic figure, range, times and ripple, and the method."""
+    parts = ["<h2>AGC</h2>"]
+    if "agc.png" in figures:
+        parts.append(_img("agc.png", figures["agc.png"], "AGC characteristic"))
+    k = "measured.agc."
+    parts.append("<table>"
+                 + _row("reference input, dBFS", [_num(d, k + "reference_dbfs")])
+                 + _row("input range, output within 3 dB, dB", [_num(d, k + "range_db.3")])
+                 + _row("input range, output within 10 dB, dB", [_num(d, k + "range_db.10")])
+                 + _row("attack, +20 dB step to within 2 dB, ms", [_num(d, k + "attack_ms")])
+                 + _row("release, -20 dB step to within 2 dB, ms", [_num(d, k + "release_ms")])
+                 + _row("gain ripple, 80 % at 100 Hz, dB peak to peak", [_num(d, k + "ripple_db")])
+                 + "</table>")
+    parts.append('<p class="note">Method: %s; %s path.</p>' % (_e(d["measured"]["agc"]["method"]),
+                                                               _e(d["measured"]["agc"]["path"])))
+    return "\n".join(parts)
+
+
 def render_html(data: dict, figures: dict) -> str:
     """The report as one HTML page (UTF-8 text) with every figure embedded.
 
@@ -187,6 +206,8 @@ def render_html(data: dict, figures: dict) -> str:
                  + _row("variation within the -3 dB band, s", [_num(d, "designed.group_delay.variation_in_3db_s")])
                  + "</table>")
     parts.append('<p class="note">Method: %s.</p>' % _e(gd["method"]))
+    if d.get("measured") is not None and d["measured"].get("agc"):
+        parts.append(_agc_section(d, figures))
     if d.get("carriers") is not None:
         parts.append("<h2>Carriers in the capture near the tuning</h2>")
         parts.append('<p class="note">Capture: %s</p>' % _e(d["capture"]["path"]))
@@ -194,7 +215,7 @@ def render_html(data: dict, figures: dict) -> str:
             parts.append(_img("spectrum.png", figures["spectrum.png"], "capture spectrum"))
         parts.append(_carrier_table(d))
     for name in sorted(figures):
-        if name not in ("selectivity.png", "stages.png", "image.png", "group_delay.png", "spectrum.png"):
+        if name not in ("selectivity.png", "stages.png", "image.png", "group_delay.png", "spectrum.png", "agc.png"):
             parts.append(_img(name, figures[name], name))
     parts.append("</body></html>\n")
     return "\n".join(parts)

@@ -22,6 +22,7 @@ __all__ = [
     "image_png",
     "group_delay_png",
     "spectrum_png",
+    "agc_png",
 ]
 
 #: Okabe & Ito (2008) colour-universal palette.
@@ -261,4 +262,25 @@ def spectrum_png(freqs_hz, level_dbfs, tune_hz, passband_hz, image_hz, carriers,
                     xycoords="axes fraction", ha="right", va="top", fontsize=8, color=OKABE_ITO["vermillion"])
     if title:
         fig.suptitle(title)
+    return _png(fig, ctx)
+
+
+def agc_png(characteristic, range_db, range_dbfs, reference_dbfs, *, title="") -> bytes:
+    """The AGC characteristic: audio output against antenna level, the 3 and 10 dB ranges shaded."""
+    fig, ctx = _figure()
+    ax = fig.add_subplot(1, 1, 1)
+    lv = [p[0] for p in characteristic]
+    db = [p[1] for p in characteristic]
+    for key, colour in (("10", OKABE_ITO["sky_blue"]), ("3", OKABE_ITO["green"])):
+        lo, hi = range_dbfs[key]
+        ax.axvspan(lo, hi, color=colour, alpha=0.18, lw=0,
+                   label=f"output within ±{key} dB: {range_db[key]:.1f} dB of input")
+    ax.plot(lv, db, color=OKABE_ITO["blue"], marker="o", ms=3.5, lw=1.4, label="audio output (1 kHz, 30 %)")
+    ax.axvline(reference_dbfs, color=OKABE_ITO["vermillion"], lw=0.9, ls="--",
+               label=f"reference input {reference_dbfs:g} dBFS")
+    ax.set_xlabel("antenna level of the carrier, dBFS")
+    ax.set_ylabel("audio output, dB re reference")
+    ax.set_ylim(min(-30.0, min(db) - 3), max(10.0, max(db) + 3))
+    ax.legend(loc="lower right", fontsize=8.5)
+    ax.set_title(title, fontsize=10)
     return _png(fig, ctx)
