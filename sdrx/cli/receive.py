@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from .common import capture_options, progress_for
+from .common import capture_options, correction_options, progress_for
 
 __all__ = ["command"]
 
@@ -34,14 +34,21 @@ def _list_chains(ctx, _param, value):
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 @click.option("--list-chains", is_flag=True, expose_value=False, is_eager=True, callback=_list_chains,
               help="List the shipped chain presets and exit.")
+@click.option("--spacing", default="10k", show_default=True, metavar="HZ",
+              help="Channel grid of the broadcast carriers that --correct clock estimates the clock error from.")
+@correction_options
 @capture_options
-def command(capture, tune, chain, out, summary, path, if_rate, float_output, force, quiet,
+def command(capture, tune, chain, out, summary, path, if_rate, float_output, force, quiet, spacing, correct, ppm,
             datatype, rate, center, start, duration):
     """Receive one station of CAPTURE through a superheterodyne chain; write its audio.
 
     Example:
 
         sdrx receive demo_signals/coast.sigmf-meta --tune 1130k --chain narrow -o harbour.wav --summary harbour.json
+
+    With --correct (dc, iq, clock, all) the recorder's faults are estimated
+    over the excerpt and undone before the chain; the summary's
+    "corrections" gives the values used.
     """
     from ..run import receive
 
@@ -49,7 +56,8 @@ def command(capture, tune, chain, out, summary, path, if_rate, float_output, for
     try:
         s = receive(capture, tune, chain, out, summary_path=summary, path=path, start_s=start,
                     duration_s=duration, float_output=float_output, force=force, progress=bar,
-                    datatype=datatype, fs=rate, center_hz=center, if_rate_hz=if_rate)
+                    datatype=datatype, fs=rate, center_hz=center, if_rate_hz=if_rate, correct=correct, ppm=ppm,
+                    spacing_hz=spacing)
     finally:
         if bar is not None:
             bar.close()
