@@ -305,12 +305,15 @@ def _leakage(band, found, noise):
 
 def _dc_separable(band, found, noise):
     """Can the DC offset be told from a carrier at the centre? (bool, note or None)."""
+    from scipy.ndimage import median_filter
+
     p_res = np.clip(band.power - np.abs(band.mean) ** 2, 0.0, None)
     near = np.flatnonzero(np.abs(band.freqs - band.center_hz) <= found.spacing_hz / 4.0)
     i0 = _bin_of(band, band.center_hz)
     k = int(near[np.argmax(p_res[near])])
     line = float(np.sum(p_res[max(0, k - _LOBE):k + _LOBE + 1]))
-    if p_res[k] > noise * 10.0 ** (found.threshold_db / 10.0):
+    local = float(median_filter(p_res, size=33, mode="nearest")[k])
+    if p_res[k] > noise * 10.0 ** (found.threshold_db / 10.0) and p_res[k] > local * 10.0 ** (_LINE_DB / 10.0):
         # a line turning near 0 Hz: how far from 0 Hz (its turn between segments, its mean removed)
         lag = band.lag1[k] - abs(band.mean[k]) ** 2
         delta_hz = band.freqs[k] - band.center_hz + math.atan2(lag.imag, lag.real) / (2 * math.pi) * band.rbw_hz
