@@ -301,3 +301,22 @@ def test_report_and_compare_take_corrections(captures, tmp_path, capsys):
     assert rc == 0, err
     cmp = json.loads((tmp_path / "c" / "compare.json").read_text())
     assert sorted(cmp["corrections"]["applied"]) == ["dc", "iq"]
+
+
+def test_refs_cases_carry_corrections(captures, tmp_path, capsys):
+    p, _ = captures["faulty"]
+    cases = tmp_path / "cases.toml"
+    cases.write_text(f'[[case]]\nname = "fixed"\ncapture = "{p}"\ntune = "1050k"\nchain = "medium"\n'
+                     'duration = 0.5\ncorrect = ["dc", "iq", "clock"]\n')
+    rc, out, err = run(["refs", "record", cases, "--store", tmp_path / "store", "--quiet"], capsys)
+    assert rc == 0, err
+    manifest = json.loads((tmp_path / "store" / "sdrx-refs.json").read_text())
+    assert manifest["cases"]["fixed"]["case"]["correct"] == ["dc", "iq", "clock"]
+    rc, out, err = run(["refs", "verify", cases, "--store", tmp_path / "store", "--quiet"], capsys)
+    assert rc == 0, err
+    for line, message in (('correct = ["dc", "mains"]', "correct 'mains': choose from dc, iq, clock, all, none"),
+                          ('correct = ["dc"]\nppm = 60', "ppm: gives the clock error that correct"),
+                          ('correct = 3', "correct: expected a list")):
+        cases.write_text(f'[[case]]\nname = "bad"\ncapture = "{p}"\ntune = "1050k"\nchain = "medium"\n{line}\n')
+        rc, out, err = run(["refs", "record", cases, "--store", tmp_path / "store2"], capsys)
+        assert rc == 2 and err.startswith("sdrx: error: ") and err.count("\n") == 1 and message in err, err

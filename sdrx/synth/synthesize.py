@@ -471,7 +471,7 @@ def _add_neighbours(stations: list) -> None:
     """Each station's neighbours within :data:`NEIGHBOUR_HZ` (offset, level relative to it) and the side they
     are on: "below", "above", "both" or None, so that a one-sided adjacent station shows in the truth."""
     for st in stations:
-        near = [{"name": o["name"], "offset_hz": o["carrier_hz"] - st["carrier_hz"],
+        near = [{"name": o["name"], "offset_hz": round(o["carrier_hz"] - st["carrier_hz"], 6),
                  "level_db": o["level_dbfs"] - st["level_dbfs"]}
                 for o in stations if o is not st and abs(o["carrier_hz"] - st["carrier_hz"]) <= NEIGHBOUR_HZ]
         near.sort(key=lambda n: n["offset_hz"])
