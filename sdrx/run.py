@@ -107,7 +107,7 @@ def _prefetch(blocks, depth: int = 2):
 def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, path: str = "fast",
             start_s=0.0, duration_s=None, float_output: bool = False, force: bool = False,
             progress=None, datatype=None, fs=None, center_hz=None, block_size=None,
-            if_rate_hz=None, spacing_hz=10e3) -> dict:
+            if_rate_hz=None, correct=None, ppm=None, spacing_hz=10e3) -> dict:
     """Receive one station from a capture through a chain; write the audio.
 
     Parameters
@@ -132,8 +132,14 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
         For raw files and I/Q WAV (see :func:`sdrx.capture.open_capture`).
     if_rate_hz : float, optional
         Exact path: IF sample rate (default automatic).
+    correct : str, sequence of str or CorrectionPlan, optional
+        Capture corrections (``--correct``: dc, iq, clock, all, none), estimated
+        over the excerpt; or a plan already made (:func:`sdrx.capture.correct.plan_corrections`).
+    ppm : float, optional
+        ``--ppm``: the clock error to undo instead of estimating it.
     spacing_hz : float or str
-        Channel spacing for the adjacent-channel checks ("9k", "10k").
+        Channel spacing ("9k", "10k"): the adjacent channels of the checks, and the grid of
+        broadcast carriers the clock estimate uses.
 
     Returns
     -------
@@ -149,6 +155,8 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
 
     if path not in PATHS:
         raise ParameterError(f"--path {path!r}: choose one of {', '.join(PATHS)}")
+    from .capture.correct import CorrectionPlan, corrected_reader, plan_corrections
+
     reader = capture if hasattr(capture, "blocks") else open_capture(capture, datatype=datatype, fs=fs, center_hz=center_hz)
     info = reader.info
     inputs = [info.path, info.data_path]
@@ -159,11 +167,24 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
         summary_path = check_output(summary_path, inputs=inputs + [out], force=force, option="--summary")
     tune = parse_frequency(tune_hz, "--tune")
     design = design_chain(chain)
-    first, count = reader.sample_range(start_s, duration_s)
+    first, _ = reader.sample_range(start_s, duration_s)   # a bad excerpt fails before the estimate
     if_rate = None if if_rate_hz is None else parse_frequency(if_rate_hz, "--if-rate")
     if if_rate is not None and path != "exact":
         raise ParameterError("--if-rate: only the exact path has an IF sample rate (add --path exact)")
     spacing = parse_frequency(spacing_hz, "--spacing")
+    # the tuning and the path are checked before the corrections' estimation pass reads the capture
+    Receiver(design, info, tune, path=path, first_sample=first, if_rate_hz=if_rate, spacing_hz=spacing).close()
+    if isinstance(correct, CorrectionPlan):
+        if ppm is not None:
+            raise ParameterError("--ppm: already part of the correction plan given")
+        plan = correct
+    else:
+        plan = plan_corrections(reader, correct, ppm=ppm, spacing_hz=spacing, start_s=start_s,
+                                duration_s=duration_s)
+    # the corrected capture has the recorded rate, centre and band (only its length differs)
+    reader = corrected_reader(reader, plan)
+    info = reader.info
+    first, count = reader.sample_range(start_s, duration_s)
     rx = Receiver(design, info, tune, path=path, first_sample=first, if_rate_hz=if_rate, spacing_hz=spacing)
     audio_fs = rx.audio_fs
     expected = int(math.floor(count * audio_fs / info.fs + 1e-9))
@@ -195,7 +216,8 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
         "agc_gain_db": _round(st["agc_gain_db"]),
         "clipped_samples": int(clipped),
         "checks": rx.checks,
-        "warnings": list(rx.warnings),
+        "corrections": plan.to_json(),
+        "warnings": list(plan.warnings) + list(rx.warnings),
     }
     if path == "exact":
         summary["if_rate_hz"] = rx.front.fs_if

@@ -19,7 +19,8 @@ from scipy import stats
 from ..errors import CaptureError, ParameterError
 from ..units import parse_frequency
 
-__all__ = ["Carrier", "Survey", "survey", "survey_carriers", "DEFAULT_THRESHOLD_DB"]
+__all__ = ["Carrier", "Survey", "BandStatistics", "band_statistics", "survey", "survey_statistics",
+           "survey_carriers", "noise_floor", "DEFAULT_THRESHOLD_DB"]
 
 DEFAULT_THRESHOLD_DB = 10.0
 _FALSE_ALARM = 1e-9      # per-bin probability that noise alone passes the threshold
@@ -89,6 +90,169 @@ def _choose_nfft(fs: float, spacing_hz: float, count: int) -> int:
     return nfft
 
 
+@dataclass(frozen=True)
+class BandStatistics:
+    """Averaged spectral statistics of a capture excerpt, from one streamed pass.
+
+    Every array is indexed by ``freqs`` (absolute RF frequency, ascending;
+    I/Q spectra are fft-shifted). Calibration as in :func:`survey`: a line of
+    amplitude A summed over its main lobe gives A² in ``power``.
+
+    Attributes
+    ----------
+    kind : str
+        ``"iq"`` or ``"real"``.
+    fs, center_hz : float
+        Sample rate; centre of an I/Q capture (None for real).
+    nfft, segments : int
+        Segment length (Hann, no overlap) and how many were averaged.
+    first, samples : int
+        First sample of the excerpt and the number of samples used (whole segments).
+    freqs : ndarray
+    power : ndarray
+        Mean |X_s|² per bin.
+    mean : ndarray (complex)
+        Mean X_s per bin (the part that repeats from segment to segment: a DC
+        offset, lines at a whole number of cycles per segment).
+    lag1 : ndarray (complex)
+        Mean X_{s+1}·conj(X_s) per bin: a line δ bins off the bin centre turns
+        by 2π·δ from one segment to the next.
+    complementary : ndarray (complex) or None
+        I/Q only: mean X_s(f)·X_s(−f), bin f paired with its mirror −f about
+        the centre (the complementary spectrum; zero for a proper signal).
+    dc : complex or float
+        Time-domain mean of the samples used.
+    """
+
+    kind: str
+    fs: float
+    center_hz: float | None
+    nfft: int
+    segments: int
+    first: int
+    samples: int
+    freqs: np.ndarray
+    power: np.ndarray
+    mean: np.ndarray
+    lag1: np.ndarray
+    complementary: np.ndarray | None
+    dc: complex
+
+    @property
+    def rbw_hz(self) -> float:
+        """Bin spacing fs / nfft, Hz."""
+        return self.fs / self.nfft
+
+    @property
+    def seconds(self) -> float:
+        """Duration of the samples used, s."""
+        return self.samples / self.fs
+
+
+def _check_spacing(info, spacing_hz) -> float:
+    spacing = parse_frequency(spacing_hz, "--spacing")
+    if spacing <= 0:
+        raise ParameterError(f"--spacing: must be positive, got {spacing_hz!r}")
+    if spacing >= info.fs / 2:
+        raise ParameterError(
+            f"--spacing {spacing:g}: must be well below the capture's bandwidth (rate {info.fs:g} Hz)"
+        )
+    return spacing
+
+
+def band_statistics(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, progress=None) -> BandStatistics:
+    """Stream a capture excerpt once and average its spectral statistics.
+
+    Parameters
+    ----------
+    reader : CaptureReader
+    spacing_hz : float or str
+        Channel spacing; sets the resolution (about spacing / 64).
+    start_s, duration_s
+        The excerpt, seconds.
+    progress : callable, optional
+        ``progress(done_samples, total_samples)``.
+
+    Returns
+    -------
+    BandStatistics
+
+    Raises
+    ------
+    ParameterError
+        Spacing not positive, or not below the capture's bandwidth.
+    CaptureError
+        Excerpt too short to resolve the channel grid.
+
+    Notes
+    -----
+    Hann-windowed segments of ``nfft`` samples, no overlap (Welch, 1967);
+    memory is a few spectra of ``nfft`` bins whatever the length.
+    """
+    info = reader.info
+    spacing = _check_spacing(info, spacing_hz)
+    first, count = reader.sample_range(start_s, duration_s)
+    nfft = _choose_nfft(info.fs, spacing, count)
+    if count < nfft:
+        raise CaptureError(
+            f"{info.path}: excerpt of {count} samples is too short to survey {spacing:g} Hz channels "
+            f"(needs at least {nfft})"
+        )
+    is_iq = info.kind == "iq"
+    window = np.hanning(nfft + 1)[:-1].astype(np.float32)  # periodic Hann
+    norm = (1.0 if is_iq else 4.0) / (nfft * float(np.sum(window.astype(np.float64) ** 2)))
+    used = (count // nfft) * nfft
+    nbin = nfft if is_iq else nfft // 2 + 1
+    acc = np.zeros(nbin, dtype=np.float64)
+    acc_mean = np.zeros(nbin, dtype=np.complex128)
+    acc_lag = np.zeros(nbin, dtype=np.complex128)
+    acc_comp = np.zeros(nbin, dtype=np.complex128) if is_iq else None
+    mirror = (-np.arange(nfft)) % nfft
+    total = 0.0 + 0.0j
+    prev = None
+    segments = 0
+    done = 0
+    for block in reader.blocks(nfft * _SEGMENTS_PER_BLOCK, start_s=start_s, duration_s=duration_s):
+        take = min(block.shape[0], used - done)
+        k = take // nfft
+        if k > 0:
+            part = block[: k * nfft]
+            total += complex(np.sum(part, dtype=np.complex128 if is_iq else np.float64))
+            seg = part.reshape(k, nfft) * window
+            spec = np.fft.fft(seg, axis=1) if is_iq else np.fft.rfft(seg, axis=1)
+            acc += np.sum(spec.real.astype(np.float64) ** 2 + spec.imag.astype(np.float64) ** 2, axis=0)
+            acc_mean += np.sum(spec, axis=0, dtype=np.complex128)
+            chain = spec if prev is None else np.concatenate([prev[None, :], spec])
+            acc_lag += np.sum(chain[1:] * np.conj(chain[:-1]), axis=0, dtype=np.complex128)
+            prev = spec[-1]
+            if acc_comp is not None:
+                acc_comp += np.sum(spec * spec[:, mirror], axis=0, dtype=np.complex128)
+            segments += k
+        done += block.shape[0]
+        if progress is not None:
+            progress(min(done, count), count)
+        if done >= used:
+            break
+    scale = norm / segments
+
+    def arrange(a):
+        return np.fft.fftshift(a) if is_iq else a
+
+    if is_iq:
+        freqs = info.center_hz + (np.arange(nfft) - nfft // 2) * (info.fs / nfft)
+    else:
+        freqs = np.arange(nbin) * (info.fs / nfft)
+    dc = total / used
+    return BandStatistics(
+        kind=info.kind, fs=float(info.fs), center_hz=info.center_hz, nfft=nfft, segments=segments,
+        first=first, samples=used, freqs=freqs, power=arrange(acc * scale),
+        mean=arrange(acc_mean * (math.sqrt(norm) / segments)),
+        lag1=arrange(acc_lag * (norm / max(1, segments - 1))),
+        complementary=None if acc_comp is None else arrange(acc_comp * scale),
+        dc=dc if is_iq else dc.real,
+    )
+
+
 def survey(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, threshold_db=DEFAULT_THRESHOLD_DB,
            progress=None) -> Survey:
     """Find the carriers on the channel grid of a capture excerpt.
@@ -152,58 +316,41 @@ def survey(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, threshold_d
     >>> [(c.freq_hz, round(c.level_dbfs, 1)) for c in survey_carriers(open_capture(p))]
     [(1030000.0, -20.0)]
     """
-    info = reader.info
-    spacing = parse_frequency(spacing_hz, "--spacing")
-    if spacing <= 0:
-        raise ParameterError(f"--spacing: must be positive, got {spacing_hz!r}")
-    if spacing >= info.fs / 2:
-        raise ParameterError(
-            f"--spacing {spacing:g}: must be well below the capture's bandwidth (rate {info.fs:g} Hz)"
-        )
+    spacing = _check_spacing(reader.info, spacing_hz)
+    thr_db = _check_threshold(threshold_db)
+    stats = band_statistics(reader, spacing_hz=spacing, start_s=start_s, duration_s=duration_s,
+                            progress=progress)
+    return survey_statistics(stats, spacing, thr_db)
+
+
+def _check_threshold(threshold_db) -> float:
     thr_db = float(threshold_db)
     if not math.isfinite(thr_db) or thr_db <= 0:
         raise ParameterError(f"threshold_db: must be a positive number of dB, got {threshold_db!r}")
-    first, count = reader.sample_range(start_s, duration_s)
-    nfft = _choose_nfft(info.fs, spacing, count)
-    if count < nfft:
-        raise CaptureError(
-            f"{info.path}: excerpt of {count} samples is too short to survey {spacing:g} Hz channels "
-            f"(needs at least {nfft})"
-        )
-    is_iq = info.kind == "iq"
-    window = np.hanning(nfft + 1)[:-1].astype(np.float32)  # periodic Hann
-    norm = (1.0 if is_iq else 4.0) / (nfft * float(np.sum(window.astype(np.float64) ** 2)))
-    used = (count // nfft) * nfft
-    acc = np.zeros(nfft if is_iq else nfft // 2 + 1, dtype=np.float64)
-    segments = 0
-    done = 0
-    for block in reader.blocks(nfft * _SEGMENTS_PER_BLOCK, start_s=start_s, duration_s=duration_s):
-        take = min(block.shape[0], used - done)
-        k = take // nfft
-        if k > 0:
-            seg = block[: k * nfft].reshape(k, nfft) * window
-            spec = np.fft.fft(seg, axis=1) if is_iq else np.fft.rfft(seg, axis=1)
-            acc += np.sum(spec.real.astype(np.float64) ** 2 + spec.imag.astype(np.float64) ** 2, axis=0)
-            segments += k
-        done += block.shape[0]
-        if progress is not None:
-            progress(min(done, count), count)
-        if done >= used:
-            break
-    power = acc * (norm / segments)
-    if is_iq:
-        power = np.fft.fftshift(power)
-        freqs = info.center_hz + (np.arange(nfft) - nfft // 2) * (info.fs / nfft)
-    else:
-        freqs = np.arange(power.size) * (info.fs / nfft)
-    gamma = stats.gamma(segments, scale=1.0 / segments)
-    noise = float(np.median(power)) / float(gamma.median())
-    noise = max(noise, float(np.max(power)) * 10.0 ** (-_DYNAMIC_RANGE_DB / 10.0))
-    thr_used = max(thr_db, 10.0 * math.log10(float(gamma.isf(_FALSE_ALARM))))
-    carriers = _find(power, freqs, info.fs / nfft, spacing, noise, 10.0 ** (thr_used / 10.0))
+    return thr_db
+
+
+def noise_floor(band: BandStatistics) -> float:
+    """Mean noise power per bin of the averaged spectrum (see :func:`survey`, Notes)."""
+    gamma = stats_gamma(band.segments)
+    noise = float(np.median(band.power)) / float(gamma.median())
+    return max(noise, float(np.max(band.power)) * 10.0 ** (-_DYNAMIC_RANGE_DB / 10.0))
+
+
+def stats_gamma(segments: int):
+    """The gamma(K, 1/K) law of an average of K noise periodogram values (mean 1)."""
+    return stats.gamma(segments, scale=1.0 / segments)
+
+
+def survey_statistics(band: BandStatistics, spacing_hz: float, threshold_db: float = DEFAULT_THRESHOLD_DB) -> Survey:
+    """The carriers on the channel grid, from statistics already averaged (see :func:`survey`)."""
+    thr_db = _check_threshold(threshold_db)
+    noise = noise_floor(band)
+    thr_used = max(thr_db, 10.0 * math.log10(float(stats_gamma(band.segments).isf(_FALSE_ALARM))))
+    carriers = _find(band.power, band.freqs, band.rbw_hz, spacing_hz, noise, 10.0 ** (thr_used / 10.0))
     floor_db = 10.0 * math.log10(noise) if noise > 0 else -math.inf
-    return Survey(carriers=tuple(carriers), spacing_hz=spacing, noise_floor_dbfs=floor_db,
-                  rbw_hz=info.fs / nfft, nfft=nfft, segments=segments, threshold_db=thr_used)
+    return Survey(carriers=tuple(carriers), spacing_hz=float(spacing_hz), noise_floor_dbfs=floor_db,
+                  rbw_hz=band.rbw_hz, nfft=band.nfft, segments=band.segments, threshold_db=thr_used)
 
 
 def _find(power, freqs, rbw, spacing, noise, thr_ratio) -> list:

@@ -10,6 +10,7 @@ from .base import CaptureReader
 from .datatypes import parse_datatype
 from .raw import open_raw
 from .sigmf import is_sigmf_path, open_sigmf
+from .sigmf_archive import is_sigmf_archive, open_sigmf_archive
 from .soundfiles import SOUNDFILE_SUFFIXES, open_soundfile
 
 __all__ = ["open_capture"]
@@ -22,7 +23,8 @@ def open_capture(path, *, datatype=None, fs=None, center_hz=None) -> CaptureRead
     ----------
     path : str or Path
         A WAV/RF64/W64 file (``.wav``, ``.rf64``, ``.w64``); either file of a
-        SigMF pair (``.sigmf-meta`` / ``.sigmf-data``); or, when ``datatype``
+        SigMF pair (``.sigmf-meta`` / ``.sigmf-data``); a SigMF archive
+        (``.sigmf``, read in place); or, when ``datatype``
         is given, a headerless raw file of any name.
     datatype : str, optional
         SigMF datatype of a raw file (``ci16_le``, ``cf32_le``, ``cu8``, ...).
@@ -67,8 +69,12 @@ def open_capture(path, *, datatype=None, fs=None, center_hz=None) -> CaptureRead
         if is_sigmf_path(p):
             return open_sigmf(p, center_hz=center)
         return open_soundfile(p, center_hz=center)
-    if name.endswith(".sigmf"):
-        raise CaptureError(f"{p}: SigMF archives are not read; extract the .sigmf-meta/.sigmf-data pair first")
+    if is_sigmf_archive(p):
+        if datatype is not None or rate is not None:
+            raise ParameterError(
+                f"--format/--rate: apply to headerless raw files; {p} is a SigMF archive with its own format and rate"
+            )
+        return open_sigmf_archive(p, center_hz=center)
     if datatype is not None:
         dt = parse_datatype(datatype, "--format")
         if not p.exists():
@@ -77,6 +83,6 @@ def open_capture(path, *, datatype=None, fs=None, center_hz=None) -> CaptureRead
     if not p.exists():
         raise CaptureError(f"{p}: no such file")
     raise CaptureError(
-        f"{p}: unknown capture type; name a .wav/.rf64/.w64 file or a .sigmf-meta/.sigmf-data pair, "
+        f"{p}: unknown capture type; name a .wav/.rf64/.w64 file, a .sigmf-meta/.sigmf-data pair or a .sigmf archive, "
         "or give --format DATATYPE --rate HZ for a headerless raw file"
     )

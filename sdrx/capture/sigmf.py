@@ -20,7 +20,7 @@ from .datatypes import parse_datatype
 from .meta import CaptureInfo
 from .raw import BinaryReader, binary_sample_count
 
-__all__ = ["SIGMF_VERSION", "sigmf_pair", "is_sigmf_path", "open_sigmf", "build_meta"]
+__all__ = ["SIGMF_VERSION", "sigmf_pair", "is_sigmf_path", "open_sigmf", "meta_fields", "build_meta"]
 
 SIGMF_VERSION = "1.0.0"
 META_SUFFIX = ".sigmf-meta"
@@ -98,6 +98,35 @@ def open_sigmf(path, *, center_hz=None) -> BinaryReader:
     glob = doc["global"]
     if "core:dataset" in glob:
         data_path = meta_path.with_name(str(glob["core:dataset"]))
+    dt, fs, center, header = meta_fields(doc, meta_path, center_hz)
+    n = binary_sample_count(data_path, dt, header)
+    info = CaptureInfo(path=meta_path, data_path=data_path, fs=fs, center_hz=center, kind=dt.kind,
+                       datatype=dt.name, samples=n)
+    return BinaryReader(info, dt, header)
+
+
+def meta_fields(doc: dict, meta_path, center_hz=None) -> tuple:
+    """Datatype, sample rate, centre and header bytes of a SigMF metadata document.
+
+    Parameters
+    ----------
+    doc : dict
+        The parsed metadata (with its ``global`` object).
+    meta_path : Path or str
+        Where it came from (for the messages).
+    center_hz : float or None
+        As in :func:`open_sigmf`.
+
+    Returns
+    -------
+    (Datatype, float, float or None, int)
+
+    Raises
+    ------
+    CaptureError, ParameterError
+        As in :func:`open_sigmf`.
+    """
+    glob = doc["global"]
     if "core:datatype" not in glob:
         raise CaptureError(f"{meta_path}: global lacks core:datatype (the sample format, e.g. ci16_le)")
     try:
@@ -140,10 +169,7 @@ def open_sigmf(path, *, center_hz=None) -> BinaryReader:
         if center_hz is not None:
             raise ParameterError(f"--center: applies to I/Q captures; {meta_path} holds real samples ({dt.name})")
         center = None
-    n = binary_sample_count(data_path, dt, header)
-    info = CaptureInfo(path=meta_path, data_path=data_path, fs=fs, center_hz=center, kind=dt.kind,
-                       datatype=dt.name, samples=n)
-    return BinaryReader(info, dt, header)
+    return dt, fs, center, header
 
 
 def build_meta(*, datatype: str, fs: float, center_hz=None, description=None, author=None,

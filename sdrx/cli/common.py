@@ -9,7 +9,7 @@ import click
 from ..errors import SdrxError
 from ..progress import make_progress
 
-__all__ = ["run_cli", "capture_options", "capture_kwargs", "progress_for", "fail"]
+__all__ = ["run_cli", "capture_options", "capture_kwargs", "correction_options", "progress_for", "fail"]
 
 
 def _terminate(signum, frame):
@@ -86,3 +86,16 @@ def capture_kwargs(datatype, rate, center):
 def progress_for(label: str, quiet: bool):
     """A terminal progress bar, or None when quiet or not on a TTY."""
     return make_progress(label, quiet=quiet)
+
+
+def correction_options(f):
+    """``--correct`` and ``--ppm``: undo the recording front end's faults (sdrx.capture.correct)."""
+    opts = [
+        click.option("--correct", "correct", default="none", show_default=True, metavar="LIST",
+                     help="Undo the recorder's faults first: dc, iq, clock (comma-separated), all or none."),
+        click.option("--ppm", "ppm", default=None, metavar="PPM",
+                     help="Clock error to undo with --correct clock, instead of estimating it (e.g. 60)."),
+    ]
+    for o in reversed(opts):
+        f = o(f)
+    return f

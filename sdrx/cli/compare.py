@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from .common import capture_kwargs, capture_options, progress_for
+from .common import capture_kwargs, capture_options, correction_options, progress_for
 
 __all__ = ["command"]
 
@@ -25,8 +25,9 @@ __all__ = ["command"]
               help="Execution path of the receiver.")
 @click.option("--force", is_flag=True, help="Write into DIR although it is not empty.")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary line.")
+@correction_options
 @capture_options
-def command(capture, specs, tune, out_dir, blind, seed, spacing, path, force, quiet,
+def command(capture, specs, tune, out_dir, blind, seed, spacing, path, force, quiet, correct, ppm,
             datatype, rate, center, start, duration):
     """Compare chains by ear: the same excerpt through each, aligned and loudness-matched.
 
@@ -42,7 +43,8 @@ def command(capture, specs, tune, out_dir, blind, seed, spacing, path, force, qu
     DIR/blind-key.json. The excerpt is --start/--duration, by default the rest
     of the capture from --start, at most 30 s (1 to 120 s allowed). Each
     receiver runs 0.2 s ahead of the excerpt to settle (from --start 0, the
-    first 0.2 s is not heard).
+    first 0.2 s is not heard). With --correct the recorder's faults are
+    estimated once and undone alike for every chain.
     """
     from ..compare.run import compare
 
@@ -50,7 +52,7 @@ def command(capture, specs, tune, out_dir, blind, seed, spacing, path, force, qu
     try:
         result = compare(capture, tune, specs, out_dir, start_s=start, duration_s=duration, blind=blind,
                          seed=seed, spacing_hz=spacing, path=path, force=force, progress=bar,
-                         **capture_kwargs(datatype, rate, center))
+                         correct=correct, ppm=ppm, **capture_kwargs(datatype, rate, center))
     finally:
         if bar is not None:
             bar.close()

@@ -6,19 +6,63 @@ import json
 
 import click
 
-from ..analysis.survey import DEFAULT_THRESHOLD_DB, survey
+from ..analysis.survey import DEFAULT_THRESHOLD_DB, band_statistics, survey_statistics
 from ..capture import open_capture
+from ..capture.impairments import CARRIER_TOLERANCE_HZ, estimate_from_statistics
 from ..units import format_frequency
 from .common import capture_kwargs, capture_options, progress_for
 
-__all__ = ["command", "format_info"]
+__all__ = ["command", "format_info", "format_impairments"]
 
 
 def _k(hz) -> str:
     return f"{hz / 1e3:.6g}"
 
 
-def format_info(info, result, first: int, count: int) -> str:
+def _carrier_note(info, c, carriers, imp) -> str:
+    """'  DC offset?' or '  mirror of F kHz?' for a line the recorder's faults explain."""
+    if imp is None or info.kind != "iq":
+        return ""
+    f = c.freq_hz + c.offset_hz
+    if abs(f - info.center_hz) < 1.0 and imp.dc_separable and imp.dc_offset_dbfs is not None \
+            and abs(imp.dc_offset_dbfs - c.level_dbfs) < 1.0:
+        return "  (the DC offset)"
+    irr = imp.mirror_rejection_db
+    if irr is None:
+        return ""
+    for o in carriers:
+        if o is not c and abs(2 * info.center_hz - (o.freq_hz + o.offset_hz) - f) < 5.0 \
+                and abs(o.level_dbfs - irr - c.level_dbfs) < 3.0:
+            return f"  (mirror of {_k(o.freq_hz)})"
+    return ""
+
+
+def format_impairments(imp) -> list:
+    """The ``front end`` lines of ``sdrx info``: the estimates, then a hint per fault worth correcting."""
+    lines = [f"front end estimated over {imp.seconds:.3g} s (carrier tolerance {CARRIER_TOLERANCE_HZ:g} Hz)"]
+    dc = imp.dc_offset_dbfs
+    dc_text = "not told apart from the carrier at the centre" if not imp.dc_separable else (
+        "none" if dc is None else f"{dc:.1f} dBFS")
+    lines.append(f"  DC offset        {dc_text}")
+    if imp.kind == "iq":
+        if imp.mirror_rejection_db is None:
+            lines.append("  I/Q balance      too little signal to estimate")
+        else:
+            lines.append(f"  I/Q balance      gain {imp.iq_gain_error_db:+.3f} dB, phase {imp.iq_phase_error_deg:+.3f} deg, "
+                         f"mirror rejection {imp.mirror_rejection_db:.1f} dB")
+    if imp.clock_error_ppm is None:
+        lines.append("  clock            no estimate (fewer than 2 carriers on the grid agree)")
+    else:
+        se = "" if imp.clock_uncertainty_ppm is None else f" +- {imp.clock_uncertainty_ppm:.2f}"
+        lines.append(f"  clock            {imp.clock_error_ppm:+.2f}{se} ppm from {imp.clock_carriers} carriers")
+    for note in imp.notes:
+        lines.append(f"  note: {note}")
+    for hint in imp.hints():
+        lines.append(f"  hint: {hint}")
+    return lines
+
+
+def format_info(info, result, first: int, count: int, impairments=None) -> str:
     """The compact terminal table of ``sdrx info``."""
     lines = []
     name = str(info.path) if info.path == info.data_path else f"{info.path} (data {info.data_path.name})"
@@ -39,7 +83,10 @@ def format_info(info, result, first: int, count: int) -> str:
     if n:
         lines.append(f"  {'kHz':>9} {'dBFS':>7} {'offset Hz':>10}")
         for c in result.carriers:
-            lines.append(f"  {_k(c.freq_hz):>9} {c.level_dbfs:>7.1f} {round(c.offset_hz) + 0:>10d}")
+            note = _carrier_note(info, c, result.carriers, impairments)
+            lines.append(f"  {_k(c.freq_hz):>9} {c.level_dbfs:>7.1f} {round(c.offset_hz) + 0:>10d}" + note)
+    if impairments is not None:
+        lines.extend(format_impairments(impairments))
     return "\n".join(lines)
 
 
@@ -51,11 +98,16 @@ def format_info(info, result, first: int, count: int) -> str:
 @click.option("--json", "as_json", is_flag=True, help="Print metadata and carriers as JSON.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 def command(capture, datatype, rate, center, start, duration, spacing, as_json, quiet):
-    """Metadata of CAPTURE and the carriers on the channel grid, strongest first.
+    """Metadata of CAPTURE, the carriers on the channel grid (strongest first) and the recorder's faults.
 
     CAPTURE is a WAV/RF64/W64 file (mono: real RF; stereo: I/Q, needs
     --center), either file of a SigMF pair, or a headerless raw file with
     --format, --rate (and --center for I/Q).
+
+    The recorder's faults are estimated from the same pass: DC offset, I/Q
+    gain and phase imbalance with the mirror rejection they give, and the
+    sample-clock error in ppm from the broadcast carriers on the grid; each
+    with a hint of the --correct option that undoes it.
 
     Example:
 
@@ -66,16 +118,25 @@ def command(capture, datatype, rate, center, start, duration, spacing, as_json, 
     first, count = reader.sample_range(start, duration)
     bar = progress_for("surveying", quiet)
     try:
-        result = survey(reader, spacing_hz=spacing, start_s=start, duration_s=duration,
-                        threshold_db=DEFAULT_THRESHOLD_DB, progress=bar)
+        band = band_statistics(reader, spacing_hz=spacing, start_s=start, duration_s=duration, progress=bar)
     finally:
         if bar is not None:
             bar.close()
+    result = survey_statistics(band, band_spacing(spacing), DEFAULT_THRESHOLD_DB)
+    impairments = estimate_from_statistics(band, result)
     if as_json:
         data = info.to_json()
         data["start_s"] = first / info.fs
         data["duration_s"] = count / info.fs
         data.update(result.to_json())
+        data["impairments"] = impairments.to_json()
         click.echo(json.dumps(data, indent=1, allow_nan=False))
     else:
-        click.echo(format_info(info, result, first, count))
+        click.echo(format_info(info, result, first, count, impairments))
+
+
+def band_spacing(spacing) -> float:
+    """The --spacing value in Hz (already checked by band_statistics)."""
+    from ..units import parse_frequency
+
+    return parse_frequency(spacing, "--spacing")

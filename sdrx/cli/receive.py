@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from .common import capture_options, progress_for
+from .common import capture_options, correction_options, progress_for
 
 __all__ = ["command"]
 
@@ -28,22 +28,28 @@ def _list_chains(ctx, _param, value):
 @click.option("--summary", "summary", type=click.Path(dir_okay=False), default=None, help="Write the run summary JSON here.")
 @click.option("--path", "path", type=click.Choice(["fast", "exact"]), default="fast", show_default=True,
               help="fast: complex-envelope equivalent; exact: a real IF at an IF sample rate.")
-@click.option("--spacing", default="10k", show_default=True, metavar="F",
-              help="Channel spacing for the adjacent-channel checks (9k or 10k at MF).")
 @click.option("--if-rate", default=None, metavar="HZ", help="Exact path: IF sample rate (default: chosen automatically).")
 @click.option("--float", "float_output", is_flag=True, help="Write 32-bit float WAV instead of 16-bit PCM.")
 @click.option("--force", is_flag=True, help="Replace existing outputs.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 @click.option("--list-chains", is_flag=True, expose_value=False, is_eager=True, callback=_list_chains,
               help="List the shipped chain presets and exit.")
+@click.option("--spacing", default="10k", show_default=True, metavar="HZ",
+              help="Channel spacing (9k or 10k at MF): the adjacent channels of the checks, and the grid of "
+                   "broadcast carriers that --correct clock estimates the clock error from.")
+@correction_options
 @capture_options
-def command(capture, tune, chain, out, summary, path, spacing, if_rate, float_output, force, quiet,
+def command(capture, tune, chain, out, summary, path, if_rate, float_output, force, quiet, spacing, correct, ppm,
             datatype, rate, center, start, duration):
     """Receive one station of CAPTURE through a superheterodyne chain; write its audio.
 
     Example:
 
         sdrx receive demo_signals/coast.sigmf-meta --tune 1130k --chain narrow -o harbour.wav --summary harbour.json
+
+    With --correct (dc, iq, clock, all) the recorder's faults are estimated
+    over the excerpt and undone before the chain; the summary's
+    "corrections" gives the values used.
     """
     from ..run import receive
 
@@ -51,7 +57,8 @@ def command(capture, tune, chain, out, summary, path, spacing, if_rate, float_ou
     try:
         s = receive(capture, tune, chain, out, summary_path=summary, path=path, start_s=start,
                     duration_s=duration, float_output=float_output, force=force, progress=bar,
-                    datatype=datatype, fs=rate, center_hz=center, if_rate_hz=if_rate, spacing_hz=spacing)
+                    datatype=datatype, fs=rate, center_hz=center, if_rate_hz=if_rate, correct=correct, ppm=ppm,
+                    spacing_hz=spacing)
     finally:
         if bar is not None:
             bar.close()

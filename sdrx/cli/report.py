@@ -5,7 +5,7 @@ from __future__ import annotations
 import click
 
 from ..errors import ParameterError
-from .common import capture_kwargs, capture_options, progress_for
+from .common import capture_kwargs, capture_options, correction_options, progress_for
 
 __all__ = ["command"]
 
@@ -25,8 +25,9 @@ __all__ = ["command"]
               help="Folder for report.json, report.html and the PNG figures (created if missing).")
 @click.option("--force", is_flag=True, help="Replace report files already in DIR.")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary line.")
+@correction_options
 @capture_options
-def command(chain, tune, capture, spacing, path, points, no_measure, out_dir, force, quiet,
+def command(chain, tune, capture, spacing, path, points, no_measure, out_dir, force, quiet, correct, ppm,
             datatype, rate, center, start, duration):
     """Selectivity and image report: designed and measured figures, equivalent Q, figures.
 
@@ -36,7 +37,7 @@ def command(chain, tune, capture, spacing, path, points, no_measure, out_dir, fo
 
     Writes DIR/report.json, DIR/report.html (self-contained, opens from disk)
     and DIR/*.png. With --capture, the carriers near the tuning and the
-    capture's spectrum are added.
+    capture's spectrum are added (of the corrected capture with --correct).
     """
     from ..report.build import build_report, report_files, write_report
     from ..units import parse_seconds
@@ -45,7 +46,8 @@ def command(chain, tune, capture, spacing, path, points, no_measure, out_dir, fo
     if capture is None:
         # these options describe the capture; without one they would be silently ignored
         for name, value in (("--format", datatype), ("--rate", rate), ("--center", center),
-                            ("--duration", duration)):
+                            ("--duration", duration), ("--ppm", ppm),
+                            ("--correct", None if correct == "none" else correct)):
             if value is not None:
                 raise ParameterError(f"{name} {value}: only applies with --capture CAPTURE")
         if parse_seconds(start, "--start") != 0:
@@ -64,7 +66,8 @@ def command(chain, tune, capture, spacing, path, points, no_measure, out_dir, fo
     try:
         rep = build_report(chain, tune, spacing_hz=spacing, capture=capture, path=path, measure=not no_measure,
                            points=points, start_s=start_s, duration_s=duration_s, progress=bar,
-                           capture_kw=capture_kwargs(datatype, rate, center) if capture else None)
+                           capture_kw=capture_kwargs(datatype, rate, center) if capture else None,
+                           correct=correct if capture else None, ppm=ppm)
     finally:
         if bar is not None:
             bar.close()

@@ -289,7 +289,7 @@ def _finite_or_none(v):
 
 def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, duration_s=None,
             blind: int = 0, seed=None, spacing_hz=10e3, path: str = "fast", force: bool = False,
-            progress=None, datatype=None, fs=None, center_hz=None) -> dict:
+            progress=None, datatype=None, fs=None, center_hz=None, correct=None, ppm=None) -> dict:
     """Run several chains over one excerpt and write a fair listening comparison.
 
     Parameters
@@ -319,6 +319,9 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
         ``progress(done, total)`` in capture samples over all specs.
     datatype, fs, center_hz
         Passed to :func:`sdrx.capture.open_capture` (raw files, I/Q WAV).
+    correct, ppm
+        Capture corrections (``--correct``, ``--ppm``), estimated once over the
+        excerpt run (with its settling) and applied alike for every spec.
 
     Returns
     -------
@@ -416,6 +419,10 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
     # excerpt and drop SETTLE_S of audio (with --start 0 the first SETTLE_S of the excerpt is not heard)
     preroll = min(start, SETTLE_S)
     rx_start, rx_duration = start - preroll, duration + preroll
+    from ..capture.correct import plan_corrections
+
+    fixes = plan_corrections(reader, correct, ppm=ppm, spacing_hz=spacing, start_s=rx_start,
+                             duration_s=rx_duration)
     n_capture = int(round(rx_duration * info.fs))
     total = n_capture * len(choices)
     raw, rates, summaries, delays = [], [], [], []
@@ -428,7 +435,8 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
             wav = Path(tmpdir) / f"{i}.wav"
             summary = receive(capture, tune, d, wav, path=path, start_s=rx_start, duration_s=rx_duration,
                               float_output=True, force=True, progress=sub if progress else None,
-                              datatype=datatype, fs=fs, center_hz=center_hz, spacing_hz=spacing)
+                              datatype=datatype, fs=fs, center_hz=center_hz, correct=fixes,
+                              spacing_hz=spacing)
             audio, afs = sf.read(str(wav), dtype="float64", always_2d=False)
             if audio.ndim != 1:
                 audio = audio[:, 0]
@@ -445,7 +453,10 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
             "excerpt": {"start_s": start, "duration_s": duration, "settle_s": SETTLE_S,
                         "heard_from_s": round(start + SETTLE_S - preroll, 9)},
             "path": path,
-            "subtitle": (f"Capture {info.path} ({info.kind}, {format_frequency(info.fs)} rate); excerpt "
+            "corrections": fixes.to_json(),
+            "subtitle": (f"Capture {info.path} ({info.kind}, {format_frequency(info.fs)} rate)"
+                         + (f", corrected ({', '.join(sorted(fixes.to_json()['applied']))})" if fixes.active else "")
+                         + "; excerpt "
                          f"{start:g} s + {duration:g} s, heard from {start + SETTLE_S - preroll:g} s after "
                          f"{SETTLE_S:g} s of receiver settling; {path} path; channel spacing "
                          f"{format_frequency(spacing)}."),
@@ -563,6 +574,7 @@ def write_comparison(out_dir, choices, designs, raw, rates, *, plan, tune_hz: fl
         "tune_hz": tune,
         "excerpt": dict(header["excerpt"], audio_seconds=alignment.length / audio_fs),
         "path": header["path"],
+        **({"corrections": header["corrections"]} if "corrections" in header else {}),
         "audio_rate_hz": audio_fs,
         "spacing_hz": spacing,
         "alignment": {

@@ -14,6 +14,8 @@ A cases file lists the runs whose audio is kept as a stored reference::
 
 Optional capture keys for captures that need them: ``center`` (I/Q WAV or raw
 file centre frequency), ``format`` and ``rate`` (headerless raw files).
+Capture corrections, as ``--correct``/``--ppm``/``--spacing`` of ``receive``:
+``correct = ["dc", "iq", "clock"]`` (or ``"all"``), ``ppm = 60``, ``spacing = "9k"``.
 
 Tolerance defaults (any key left out of the table takes these):
 
@@ -63,7 +65,7 @@ DEFAULT_SPECTRUM_DB = 0.5
 PATHS = ("fast", "exact")
 
 _CASE_KEYS = ("name", "capture", "tune", "chain", "start", "duration", "path", "tolerance",
-              "center", "format", "rate")
+              "center", "format", "rate", "correct", "ppm", "spacing")
 _TOLERANCE_KEYS = ("snr_db", "level_db", "spectrum_db")
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}$")
 
@@ -123,6 +125,13 @@ class Case:
     center_hz: Optional[float] = None
     datatype: Optional[str] = None
     fs: Optional[float] = None
+    correct: tuple = ()             # capture corrections (dc, iq, clock), as --correct
+    ppm: Optional[float] = None     # the clock error given, as --ppm
+    spacing_hz: float = 10e3        # channel grid of the clock estimate
+
+    def correction_kwargs(self) -> dict:
+        """Keyword arguments for ``receive`` describing the capture corrections."""
+        return {"correct": self.correct, "ppm": self.ppm, "spacing_hz": self.spacing_hz}
 
     def capture_kwargs(self) -> dict:
         """Keyword arguments for ``open_capture`` / ``receive`` describing the capture."""
@@ -143,6 +152,9 @@ class Case:
             "format": self.datatype,
             "rate_hz": self.fs,
             "tolerance": self.tolerance.to_json(),
+            # only when used, so that manifests recorded before corrections existed still match
+            **({"correct": list(self.correct), "ppm": self.ppm, "spacing_hz": self.spacing_hz}
+               if self.correct else {}),
         }
 
 
@@ -254,13 +266,32 @@ def _case(raw, index: int, base: Path, file_label: str) -> Case:
     datatype = raw.get("format")
     if datatype is not None and (not isinstance(datatype, str) or not datatype):
         raise ParameterError(f"{where}.format: expected a SigMF datatype such as ci16_le, got {datatype!r}")
+    correct, ppm, spacing = _corrections(raw, where)
     return Case(
         name=name, capture=capture, capture_text=capture_text, tune_hz=tune_hz,
         chain=chain, chain_text=chain_text, chain_is_file=chain_is_file,
         start_s=start_s, duration_s=duration_s, path=path,
         tolerance=_tolerance(raw.get("tolerance"), where),
         center_hz=center_hz, datatype=datatype, fs=fs,
+        correct=correct, ppm=ppm, spacing_hz=spacing,
     )
+
+
+def _corrections(raw, where: str) -> tuple:
+    """``correct = ["dc", "iq", "clock"]`` (or "all"), ``ppm``, ``spacing`` of a case."""
+    from ..capture.correct import parse_correct, parse_ppm
+
+    value = raw.get("correct")
+    if value is not None and not isinstance(value, (str, list)):
+        raise ParameterError(f"{where}.correct: expected a list such as [\"dc\", \"iq\"] or \"all\", got {value!r}")
+    correct = parse_correct(value, f"{where}.correct")
+    ppm = None if raw.get("ppm") is None else parse_ppm(raw["ppm"], f"{where}.ppm")
+    if ppm is not None and "clock" not in correct:
+        raise ParameterError(f"{where}.ppm: gives the clock error that correct = [\"clock\"] undoes; add \"clock\"")
+    spacing = parse_frequency(raw.get("spacing", 10e3), f"{where}.spacing")
+    if spacing <= 0:
+        raise ParameterError(f"{where}.spacing: must be above 0 Hz, got {raw.get('spacing')!r}")
+    return correct, ppm, spacing
 
 
 def load_cases(path) -> CasesFile:

@@ -90,7 +90,7 @@ def run_case(prep: Prepared, workdir, *, progress=None) -> tuple:
     summary = receive(
         case.capture, case.tune_hz, case.chain, out,
         path=case.path, start_s=case.start_s, duration_s=case.duration_s,
-        float_output=True, force=True, progress=progress, **case.capture_kwargs(),
+        float_output=True, force=True, progress=progress, **case.capture_kwargs(), **case.correction_kwargs(),
     )
     return out, summary
 

@@ -116,7 +116,7 @@ def _carriers(reader, design, tune_hz, spacing_hz, start_s, duration_s, progress
 
 
 def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", measure=True, points=31,
-                 start_s=0.0, duration_s=None, progress=None, capture_kw=None) -> Report:
+                 start_s=0.0, duration_s=None, progress=None, capture_kw=None, correct=None, ppm=None) -> Report:
     """Build the selectivity and image report of a chain at one tuning.
 
     Parameters
@@ -140,6 +140,9 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
     progress : callable, optional
     capture_kw : dict, optional
         ``datatype``, ``fs``, ``center_hz`` for :func:`sdrx.capture.open_capture`.
+    correct, ppm : optional
+        Capture corrections (``--correct``, ``--ppm``): the carriers and the
+        spectrum are those of the corrected capture.
 
     Returns
     -------
@@ -174,6 +177,13 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
             raise ParameterError(
                 f"--tune {format_frequency(tune)}: outside the band of capture {reader.info.path} "
                 f"({format_frequency(lo_b)} to {format_frequency(hi_b)})")
+        from ..capture.correct import corrected_reader, plan_corrections
+
+        plan = plan_corrections(reader, correct, ppm=ppm, spacing_hz=spacing, start_s=start_s,
+                                duration_s=duration_s)
+        reader = corrected_reader(reader, plan)
+    elif correct not in (None, "none", ()) or ppm is not None:
+        raise ParameterError("--correct/--ppm: only apply with --capture CAPTURE")
 
     designed = sel.designed_figures(design, tune, spacing)
     dres = lambda o: sel.relative_response_db(design, tune, tune + np.asarray(o, dtype=float))
@@ -257,6 +267,7 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
         from .spectrum import capture_spectrum
 
         data["capture"] = reader.info.to_json()
+        data["corrections"] = plan.to_json()
         data["carriers"] = _carriers(reader, design, tune, spacing, start_s, duration_s, None)
         f, lv = capture_spectrum(reader, spacing / 20, start_s=start_s, duration_s=duration_s)
         near = np.abs(f - tune) <= (NEAR_CHANNELS + 0.5) * spacing

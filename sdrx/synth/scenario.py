@@ -46,16 +46,18 @@ from ..errors import CaptureError, ParameterError
 from ..units import format_frequency, parse_seconds
 from ._keys import check_keys, get_choice, get_db, get_frequency, get_int, get_number, get_seconds
 from .fading import FadingSpec, parse_fading
+from .frontend import FrontEndSpec, parse_front_end
 from .noise import ImpulseSpec, parse_impulse_noise
 from .program import ProgramSpec, parse_program
 
-__all__ = ["CaptureSpec", "StationSpec", "Scenario", "load_scenario", "parse_scenario", "DATATYPES"]
+__all__ = ["CaptureSpec", "StationSpec", "CarrierSpec", "Scenario", "load_scenario", "parse_scenario", "DATATYPES"]
 
 DATATYPES = {
     "iq": ("ci16_le", "cf32_le", "ci8", "cu8"),
     "real": ("ri16_le", "rf32_le", "ri8", "ru8"),
 }
-_TOP_KEYS = ("title", "capture", "station", "impulse_noise")
+_TOP_KEYS = ("title", "capture", "station", "carrier", "impulse_noise", "front_end")
+_CARRIER_KEYS = ("name", "frequency", "level_dbfs", "phase_deg")
 _CAPTURE_KEYS = ("kind", "rate", "center", "datatype", "seconds", "noise_dbfs_per_hz", "seed")
 _STATION_KEYS = ("name", "frequency", "level_dbfs", "depth", "frequency_error", "phase_deg", "program", "fading")
 MAX_SECONDS = 24 * 3600.0
@@ -152,6 +154,32 @@ class StationSpec:
 
 
 @dataclass(frozen=True)
+class CarrierSpec:
+    """An unmodulated carrier (a heterodyne source, a beacon, a station's bare carrier).
+
+    Attributes
+    ----------
+    name : str
+    frequency_hz : float
+        RF frequency (anywhere in the band, on the channel grid or off it).
+    level_dbfs : float
+        20·log10 of its amplitude.
+    phase_deg : float or None
+        Phase at t = 0; None: drawn from the seed and the name.
+    """
+
+    name: str
+    frequency_hz: float
+    level_dbfs: float
+    phase_deg: float | None
+
+    @property
+    def name_key(self) -> int:
+        """Integer derived from the name (for its seed)."""
+        return int.from_bytes(hashlib.sha256(("carrier:" + self.name).encode("utf-8")).digest()[:8], "little")
+
+
+@dataclass(frozen=True)
 class Scenario:
     """A validated scenario.
 
@@ -163,6 +191,10 @@ class Scenario:
     capture : CaptureSpec
     stations : tuple of StationSpec
     impulse_noise : ImpulseSpec or None
+    carriers : tuple of CarrierSpec
+        Unmodulated carriers (``[[carrier]]``).
+    front_end : FrontEndSpec or None
+        Faults of the recorder (``[front_end]``).
     """
 
     path: Path | None
@@ -170,6 +202,8 @@ class Scenario:
     capture: CaptureSpec
     stations: tuple
     impulse_noise: ImpulseSpec | None
+    carriers: tuple = ()
+    front_end: FrontEndSpec | None = None
 
     def with_overrides(self, *, seconds=None, seed=None) -> "Scenario":
         """The same scenario with another duration and/or seed (``--seconds``, ``--seed``)."""
@@ -263,10 +297,44 @@ def parse_scenario(data: dict, *, name: str = "scenario", base_dir=None, path=No
             raise ParameterError(f"{where}: name {st.name!r} is used by another station (names must differ)")
         seen.add(st.name)
         stations.append(st)
+    carriers = _parse_carriers(data.get("carrier", []), name, capture, seen)
     impulse = None
     if "impulse_noise" in data:
         impulse = parse_impulse_noise(data["impulse_noise"], f"{name}: [impulse_noise]")
-    return Scenario(Path(path) if path is not None else None, title, capture, tuple(stations), impulse)
+    front_end = None
+    if "front_end" in data:
+        front_end = parse_front_end(data["front_end"], f"{name}: [front_end]", capture.kind)
+    return Scenario(Path(path) if path is not None else None, title, capture, tuple(stations), impulse,
+                    carriers, front_end)
+
+
+def _parse_carriers(raw, name, capture: CaptureSpec, seen: set) -> tuple:
+    if isinstance(raw, dict) or not isinstance(raw, list):
+        raise ParameterError(f"{name}: carrier must be an array of tables ([[carrier]]), got {type(raw).__name__}")
+    out = []
+    for i, table in enumerate(raw, start=1):
+        label = table.get("name") if isinstance(table, dict) else None
+        where = f"{name}: carrier {label!r}" if isinstance(label, str) and label else f"{name}: carrier #{i}"
+        if not isinstance(table, dict):
+            raise ParameterError(f"{where}: must be a table, got {type(table).__name__}")
+        check_keys(table, _CARRIER_KEYS, where)
+        cname = table.get("name", f"carrier {i}")
+        if not isinstance(cname, str) or not cname.strip():
+            raise ParameterError(f"{where}: name must be a non-empty string, got {cname!r}")
+        if cname in seen:
+            raise ParameterError(f"{where}: name {cname!r} is used by another station or carrier (names must differ)")
+        seen.add(cname)
+        freq = get_frequency(table, "frequency", where, positive=True)
+        level = get_db(table, "level_dbfs", where)
+        if level > 0.0:
+            raise ParameterError(f"{where}: level_dbfs = {table['level_dbfs']!r} is above full scale (allowed: <= 0 dBFS)")
+        phase = get_number(table, "phase_deg", where, None) if "phase_deg" in table else None
+        lo, hi = capture.band_hz
+        if not lo < freq < hi:
+            raise ParameterError(f"{where}: frequency {format_frequency(freq)} is outside the capture band "
+                                 f"{format_frequency(lo)} .. {format_frequency(hi)}")
+        out.append(CarrierSpec(cname, freq, level, phase))
+    return tuple(out)
 
 
 def _parse_capture(table, where) -> CaptureSpec:

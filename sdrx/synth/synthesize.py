@@ -221,6 +221,28 @@ class StationRenderer:
         return x if self._kind == "iq" else x.real
 
 
+class CarrierRenderer:
+    """An unmodulated carrier at fs: A·exp(j(2π·(f − center)·n/fs + φ)) (its real part in a real capture)."""
+
+    def __init__(self, spec, cap):
+        self.spec = spec
+        if spec.phase_deg is None:
+            ss = np.random.SeedSequence(cap.seed, spawn_key=(4, spec.name_key))
+            self.phase_deg = float(np.random.default_rng(ss).uniform(0.0, 360.0))
+        else:
+            self.phase_deg = float(spec.phase_deg)
+        self._amp = 10.0 ** (spec.level_dbfs / 20.0)
+        self.offset_hz = spec.frequency_hz - (cap.center_hz if cap.kind == "iq" else 0.0)
+        self._step = phase_step(self.offset_hz, cap.fs)
+        self._phase0 = phase_offset(self.phase_deg / 360.0)
+        self._kind = cap.kind
+
+    def render(self, start: int, count: int) -> np.ndarray:
+        """Samples ``start .. start+count-1``."""
+        x = self._amp * np.exp(2j * np.pi * phase_cycles(start, count, self._step, self._phase0))
+        return x if self._kind == "iq" else x.real
+
+
 def _renderers(scenario: Scenario):
     cap = scenario.capture
     bw = max(st.program.bandwidth_hz for st in scenario.stations)
@@ -271,19 +293,30 @@ def iter_capture(scenario: Scenario, *, block_size: int = BLOCK, progress=None, 
     if scenario.impulse_noise is not None:
         rng = np.random.default_rng(np.random.SeedSequence(cap.seed, spawn_key=(2,)))
         impulses = ImpulseNoise(scenario.impulse_noise, cap.fs, cap.kind, rng)
+    carriers = [CarrierRenderer(c, cap) for c in scenario.carriers]
+    recorder = None
+    if scenario.front_end is not None:
+        from .frontend import FrontEndRecorder
+
+        recorder = FrontEndRecorder(scenario.front_end, cap.fs, cap.center_hz if cap.kind == "iq" else None,
+                                    cap.samples)
     if _state is not None:
-        _state.update(program_fs=fa, design=design, stations=stations, impulses=impulses)
-    return _blocks(cap, stations, noise, impulses, block_size, progress)
+        _state.update(program_fs=fa, design=design, stations=stations, impulses=impulses, carriers=carriers)
+    clean = _blocks(cap, stations + carriers, noise, impulses, block_size,
+                    None if recorder is not None else progress,
+                    cap.samples if recorder is None else recorder.input_needed)
+    if recorder is None:
+        return clean
+    return _recorded(clean, recorder, block_size, progress)
 
 
-def _blocks(cap, stations, noise, impulses, block_size, progress):
-    total = cap.samples
+def _blocks(cap, sources, noise, impulses, block_size, progress, total):
     dtype = np.complex128 if cap.kind == "iq" else np.float64
     done = 0
     while done < total:
         n = min(block_size, total - done)
         out = np.zeros(n, dtype=dtype)
-        for s in stations:
+        for s in sources:
             out += s.render(done, n)
         if noise is not None:
             out += noise.take(n)
@@ -293,6 +326,37 @@ def _blocks(cap, stations, noise, impulses, block_size, progress):
         if progress is not None:
             progress(done, total)
         yield out
+
+
+def _recorded(clean, recorder, block_size, progress):
+    """The perfect recording through the faulty front end, re-blocked to ``block_size``."""
+    pending = []
+    have = 0
+    done = 0
+
+    def emit(final):
+        nonlocal pending, have, done
+        while have >= block_size or (final and have):
+            joined = np.concatenate(pending)
+            n = min(block_size, joined.size)
+            pending = [joined[n:]] if joined.size > n else []
+            have = joined.size - n
+            done += n
+            if progress is not None:
+                progress(done, recorder.total)
+            yield joined[:n]
+
+    for block in clean:
+        y = recorder.process(block)
+        if y.size:
+            pending.append(y)
+            have += y.size
+        yield from emit(False)
+    y = recorder.flush()
+    if y.size:
+        pending.append(y)
+        have += y.size
+    yield from emit(True)
 
 
 def _over_full_scale(block) -> int:
@@ -350,6 +414,7 @@ def _truth(scenario: Scenario, out: Path, state: dict, samples: int, over: int) 
                 fd["delay_s_actual"] = r.delay_samples / cap.fs
             entry["fading"] = fd
         stations.append(entry)
+    _add_neighbours(stations)
     noise = None
     if cap.noise_dbfs_per_hz is not None:
         band = cap.fs if cap.kind == "iq" else cap.fs / 2.0
@@ -380,6 +445,11 @@ def _truth(scenario: Scenario, out: Path, state: dict, samples: int, over: int) 
         },
         "noise": noise,
         "impulse_noise": imp,
+        "carriers": [dict({"name": c.spec.name, "frequency_hz": c.spec.frequency_hz,
+                           "level_dbfs": c.spec.level_dbfs, "phase_deg": c.phase_deg},
+                          **({"offset_hz": c.offset_hz} if cap.kind == "iq" else {}))
+                     for c in state.get("carriers", [])],
+        "front_end": None if scenario.front_end is None else scenario.front_end.to_json(cap.kind),
         "program_fs": state["program_fs"],
         "interpolator": {"L": state["design"].L, "K": state["design"].K},
         "stations": stations,
@@ -391,6 +461,23 @@ def _truth(scenario: Scenario, out: Path, state: dict, samples: int, over: int) 
                        "RF sample n carries p at time n / rate_hz (no delay)",
         },
     }
+
+
+#: stations within this distance of each other are listed as each other's neighbours in the truth
+NEIGHBOUR_HZ = 20e3
+
+
+def _add_neighbours(stations: list) -> None:
+    """Each station's neighbours within :data:`NEIGHBOUR_HZ` (offset, level relative to it) and the side they
+    are on: "below", "above", "both" or None, so that a one-sided adjacent station shows in the truth."""
+    for st in stations:
+        near = [{"name": o["name"], "offset_hz": round(o["carrier_hz"] - st["carrier_hz"], 6),
+                 "level_db": o["level_dbfs"] - st["level_dbfs"]}
+                for o in stations if o is not st and abs(o["carrier_hz"] - st["carrier_hz"]) <= NEIGHBOUR_HZ]
+        near.sort(key=lambda n: n["offset_hz"])
+        sides = {("above" if n["offset_hz"] > 0 else "below") for n in near if n["offset_hz"] != 0}
+        st["neighbours"] = near
+        st["adjacent_side"] = None if not sides else ("both" if len(sides) == 2 else sides.pop())
 
 
 def synthesize(scenario, out, *, seconds=None, seed=None, force=False, progress=None, block_size: int = BLOCK) -> dict:
