@@ -38,6 +38,7 @@ __all__ = [
     "spec_to_dict",
     "PRESET_DIR",
     "parse_full_scale_dbm",
+    "check_noise_figure_db",
     "FULL_SCALE_DBM_RANGE",
     "NOISE_FIGURE_DB_RANGE",
 ]
@@ -172,6 +173,25 @@ def parse_full_scale_dbm(value, name: str = "--full-scale-dbm") -> float:
     if not math.isfinite(out) or not lo <= out <= hi:
         raise ParameterError(f"{name}: {value!r} must be a power from {lo:g} to {hi:g} dBm")
     return out
+
+
+def check_noise_figure_db(value: float, name: str = "--noise-figure") -> float:
+    """A noise figure in dB within :data:`NOISE_FIGURE_DB_RANGE`.
+
+    Raises
+    ------
+    ParameterError
+        Outside the range.
+
+    Examples
+    --------
+    >>> check_noise_figure_db(7.0)
+    7.0
+    """
+    lo, hi = NOISE_FIGURE_DB_RANGE
+    if not lo <= value <= hi:
+        raise ParameterError(f"{name}: {value:g} must lie from {lo:g} to {hi:g} dB")
+    return float(value)
 
 
 def _default_stages():
@@ -449,11 +469,8 @@ def parse_spec(raw: Mapping, source: str = "<spec>", default_name: str | None = 
     if not 8000 <= audio.rate_hz <= 192000 or audio.rate_hz != int(audio.rate_hz):
         raise ParameterError(f"audio.rate: {audio.rate_hz:g} must be a whole number of Hz from 8000 to 192000")
     frontend = _build(FrontendSpec, _table(raw, "frontend"), _FRONTEND_KEYS, "frontend")
-    lo_nf, hi_nf = NOISE_FIGURE_DB_RANGE
-    if frontend.noise_figure_db is not None and not lo_nf <= frontend.noise_figure_db <= hi_nf:
-        raise ParameterError(
-            f"frontend.noise_figure_db: {frontend.noise_figure_db:g} must lie from {lo_nf:g} to {hi_nf:g} dB"
-        )
+    if frontend.noise_figure_db is not None:
+        check_noise_figure_db(frontend.noise_figure_db, "frontend.noise_figure_db")
     name = top.get("name", default_name or "custom")
     return ChainSpec(
         name=name,
