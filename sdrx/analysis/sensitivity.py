@@ -50,7 +50,7 @@ DEFAULT_NOISE_FIGURE_DB = 10.0
 #: Full scale used when the spec gives none; S/N does not depend on it (the chain is linear up to the detector).
 DEFAULT_FULL_SCALE_DBM = 0.0
 #: Carrier levels measured, dB about the prediction.
-LEVEL_OFFSETS_DB = (-6.0, -3.0, 0.0, 3.0, 6.0)
+LEVEL_OFFSETS_DB = (-4.0, 0.0, 4.0)
 
 
 def audio_response(design, f_hz):
