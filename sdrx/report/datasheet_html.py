@@ -24,12 +24,18 @@ def _text(value) -> str:
     return "<td>%s</td>" % _e(value)
 
 
+def _head(figures, title, name, alt) -> list:
+    """The section's heading and its figure."""
+    out = [f"<h2>{_e(title)}</h2>"]
+    if name in figures:
+        out.append(_img(name, figures[name], alt))
+    return out
+
+
 def _sensitivity(data, figures) -> list:
     sec = data["measured"]["sensitivity"]
     k = "measured.sensitivity."
-    out = ["<h2>Sensitivity</h2>"]
-    if "sensitivity.png" in figures:
-        out.append(_img("sensitivity.png", figures["sensitivity.png"], "audio S/N against antenna level"))
+    out = _head(figures, "Sensitivity", "sensitivity.png", "audio S/N against antenna level")
     rows = [
         "<tr><th>quantity</th><th>measured</th><th>predicted</th><th>difference</th></tr>",
         _row(f"carrier level for {sec['sn_db']:g} dB audio S/N, dBm",
@@ -58,9 +64,7 @@ def _sensitivity(data, figures) -> list:
 def _fidelity(data, figures) -> list:
     sec = data["measured"]["fidelity"]
     k = "measured.fidelity."
-    out = ["<h2>Audio fidelity</h2>"]
-    if "fidelity.png" in figures:
-        out.append(_img("fidelity.png", figures["fidelity.png"], "antenna-to-audio response"))
+    out = _head(figures, "Audio fidelity", "fidelity.png", "antenna-to-audio response")
     rows = [
         "<tr><th>quantity</th><th>measured</th><th>predicted</th></tr>",
         _row("low -3 dB point, Hz", [_num(data, k + "low_3db_hz"), _num(data, k + "predicted_low_3db_hz")]),
@@ -86,9 +90,7 @@ def _distortion(data, figures) -> list:
     sec = data["measured"]["distortion"]
     k = "measured.distortion."
     clip = sec["diagonal_clipping"]
-    out = ["<h2>Distortion</h2>"]
-    if "distortion.png" in figures:
-        out.append(_img("distortion.png", figures["distortion.png"], "THD against modulating frequency"))
+    out = _head(figures, "Distortion", "distortion.png", "THD against modulating frequency")
     head = f"<tr><th>modulation depth</th><th>THD at {sec['tone_hz']:g} Hz, %</th>"
     if clip is not None:
         head += "<th>diagonal clipping from, Hz</th><th>largest RC free of clipping at the tone, µs</th>"
