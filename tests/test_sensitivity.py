@@ -87,3 +87,11 @@ def test_needs_a_noise_figure_and_full_scale():
 
     with pytest.raises(ParameterError, match="frontend.noise_figure_db and frontend.full_scale_dbm"):
         sens.measure_sensitivity(design_chain("medium"), TUNE)
+
+
+def test_without_preselection_the_image_noise_doubles_the_noise():
+    # physical identity: a real mixer's image response equals its wanted response, so with no preselector
+    # the noise around the image reaches the detector as strongly as that around the tune: +10·log10(2) dB
+    r = sens.measure_sensitivity(_design({"preselector": {"kind": "none"}}), TUNE, **QUICK)
+    assert r.image_noise_db == pytest.approx(10 * math.log10(2), abs=0.01)
+    assert r.level_dbm == pytest.approx(r.predicted_dbm, abs=0.5)
