@@ -194,6 +194,14 @@ def measure_sensitivity(design, tune_hz: float, *, path: str = "fast", spacing_h
     ------
     ParameterError
         When the design lacks a noise figure or a full scale.
+
+    Examples
+    --------
+    >>> from sdrx.chain import design_chain
+    >>> d = with_frontend(design_chain("medium"), noise_figure_db=10.0, full_scale_dbm=-10.0)
+    >>> s = measure_sensitivity(d, 1e6, measure_s=0.2)
+    >>> round(s.predicted_dbm, 1), abs(s.difference_db) < 0.5
+    (-95.7, True)
     """
     fe = design.frontend
     if fe.noise_figure_db is None or fe.full_scale_dbm is None:
