@@ -16,8 +16,8 @@ DATASHEET_FIGURES = ("sensitivity.png", "fidelity.png", "distortion.png")
 
 
 def _notes(sec) -> str:
-    return ('<p class="note">Method: %s.</p><p class="note">Source: %s.</p>'
-            % (_e(sec["method"]), _e(sec["source"])))
+    return ('<p class="note">Method (%s path): %s.</p><p class="note">Source: %s.</p>'
+            % (_e(sec["path"]), _e(sec["method"]), _e(sec["source"])))
 
 
 def _text(value) -> str:
