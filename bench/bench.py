@@ -7,6 +7,9 @@ that drift of the machine's speed hits all of them alike:
 - ``sdrx receive`` fast path (default chain) on the 20 s capture, and on a
   capture six times longer (peak memory must stay flat);
 - ``sdrx receive --path exact`` on the 20 s capture;
+- both paths again with a chain whose ``[frontend]`` gives a noise figure, so
+  that the receiver adds the front end's thermal noise at the full 2.4 MS/s
+  (the cost of the noise source);
 - the plain whole-file pipeline of ``bench/baseline.py``, on the capture and
   on one half as long.
 
@@ -50,6 +53,13 @@ depth = 0.3
 [station.program]
 kind = "tone"
 frequency = "1k"
+"""
+
+
+NOISY_CHAIN = """# the default chain with a front end: thermal noise added at the capture rate
+[frontend]
+full_scale_dbm = -10
+noise_figure_db = 10
 """
 
 
@@ -109,7 +119,12 @@ def main(argv=None) -> int:
         print(f"synthesizing captures in {work} ...", flush=True)
         short, long_, half = make_captures(work, args.seconds, args.factor)
         sdrx = [sys.executable, "-m", "sdrx", "receive", "--tune", "1M", "--quiet", "--force"]
+        noisy = work / "noisy.toml"
+        noisy.write_text(NOISY_CHAIN)
         cmds = {
+            "fast_noise": sdrx + [str(short), "--chain", str(noisy), "-o", str(work / "fast_noise.wav")],
+            "exact_noise": sdrx + [str(short), "--chain", str(noisy), "--path", "exact",
+                                   "-o", str(work / "exact_noise.wav")],
             "fast": sdrx + [str(short), "-o", str(work / "fast.wav")],
             "exact": sdrx + [str(short), "--path", "exact", "-o", str(work / "exact.wav")],
             "baseline": [sys.executable, str(HERE / "baseline.py"), str(short), "1e6", str(work / "base.wav")],
@@ -139,6 +154,8 @@ def main(argv=None) -> int:
         rows = [
             ("fast path, default chain", "fast", dur, ">= 40x real time, <= 300 MB"),
             ("exact path, default chain", "exact", dur, ">= 5x real time"),
+            ("fast path, with thermal noise", "fast_noise", dur, ""),
+            ("exact path, with thermal noise", "exact_noise", dur, ""),
             ("plain whole-file pipeline", "baseline", dur, ""),
             (f"fast path, capture x{args.factor}", "fast_long", dur * args.factor, "peak MB within 10 % of fast"),
         ]
@@ -148,6 +165,10 @@ def main(argv=None) -> int:
         print()
         print(f"plain pipeline / fast path (wall, paired):  {ratio_base:6.1f}x   target >= 10x")
         print(f"exact path / fast path (wall, paired):      {ratio_exact:6.1f}x")
+        for k in ("fast", "exact"):
+            extra_s = statistics.median(n[0] - c[0] for n, c in zip(res[f"{k}_noise"], res[k]))
+            print(f"thermal noise, {k} path: +{extra_s:.2f} s wall for {dur:g} s of capture "
+                  f"(+{1e3 * extra_s / dur:.0f} ms per capture second, paired)")
         print(f"peak memory, capture x{args.factor} / capture x1:     {mem_ratio:6.2f}    target <= 1.10")
         base_steady = statistics.median((dur / 2) / (b[0] - h[0]) for b, h in zip(res["baseline"], res["baseline_half"]))
         print(f"fast path steady-state speed:               {steady:6.1f}x real time   target >= 40x "

@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from .chain import design_chain
+from .chain.spec import parse_full_scale_dbm
 from .errors import ParameterError
 from .fileio import atomic_path, check_output
 from .receiver import PATHS, Receiver
@@ -107,7 +108,7 @@ def _prefetch(blocks, depth: int = 2):
 def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, path: str = "fast",
             start_s=0.0, duration_s=None, float_output: bool = False, force: bool = False,
             progress=None, datatype=None, fs=None, center_hz=None, block_size=None,
-            if_rate_hz=None, correct=None, ppm=None, spacing_hz=10e3) -> dict:
+            if_rate_hz=None, correct=None, ppm=None, spacing_hz=10e3, full_scale_dbm=None) -> dict:
     """Receive one station from a capture through a chain; write the audio.
 
     Parameters
@@ -140,6 +141,9 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
     spacing_hz : float or str
         Channel spacing ("9k", "10k"): the adjacent channels of the checks, and the grid of
         broadcast carriers the clock estimate uses.
+    full_scale_dbm : float or str, optional
+        Antenna power of a full-scale carrier in this capture (``--full-scale-dbm``);
+        overrides the spec's ``frontend.full_scale_dbm``.
 
     Returns
     -------
@@ -172,8 +176,10 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
     if if_rate is not None and path != "exact":
         raise ParameterError("--if-rate: only the exact path has an IF sample rate (add --path exact)")
     spacing = parse_frequency(spacing_hz, "--spacing")
-    # the tuning and the path are checked before the corrections' estimation pass reads the capture
-    Receiver(design, info, tune, path=path, first_sample=first, if_rate_hz=if_rate, spacing_hz=spacing).close()
+    fs_dbm = None if full_scale_dbm is None else parse_full_scale_dbm(full_scale_dbm, "--full-scale-dbm")
+    rx_kw = dict(path=path, if_rate_hz=if_rate, spacing_hz=spacing, full_scale_dbm=fs_dbm)
+    # the tuning, the path and the front end are checked before the corrections' estimation pass
+    Receiver(design, info, tune, first_sample=first, **rx_kw).close()
     if isinstance(correct, CorrectionPlan):
         if ppm is not None:
             raise ParameterError("--ppm: already part of the correction plan given")
@@ -185,7 +191,7 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
     reader = corrected_reader(reader, plan)
     info = reader.info
     first, count = reader.sample_range(start_s, duration_s)
-    rx = Receiver(design, info, tune, path=path, first_sample=first, if_rate_hz=if_rate, spacing_hz=spacing)
+    rx = Receiver(design, info, tune, first_sample=first, **rx_kw)
     audio_fs = rx.audio_fs
     expected = int(math.floor(count * audio_fs / info.fs + 1e-9))
     with AudioWriter(out, audio_fs, float_output=float_output, expected_samples=expected, force=force,
@@ -213,6 +219,9 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
         "output": {"path": str(out), "rate_hz": audio_fs, "seconds": n_audio / audio_fs,
                    "samples": n_audio, "format": "float32" if float_output else "pcm16"},
         "carrier_dbfs": _round(st["carrier_dbfs"]),
+        "full_scale_dbm": rx.full_scale_dbm,
+        "carrier_dbm": _dbm(st["carrier_dbfs"], rx.full_scale_dbm),
+        "thermal_noise": _noise_summary(rx),
         "agc_gain_db": _round(st["agc_gain_db"]),
         "clipped_samples": int(clipped),
         "checks": rx.checks,
@@ -228,6 +237,26 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
     if summary_path is not None:
         write_json(summary_path, summary, force=True)
     return summary
+
+
+def _dbm(levels_dbfs: dict, full_scale_dbm):
+    """Carrier levels in dBm (dBFS + the full scale's dBm), or None when the scale is unknown."""
+    if full_scale_dbm is None:
+        return None
+    return _round({k: None if v is None else v + full_scale_dbm for k, v in levels_dbfs.items()})
+
+
+def _noise_summary(rx):
+    """What thermal noise the front end added (None when the spec has no noise figure)."""
+    from .dsp.thermal import kt0_dbm_per_hz
+
+    if rx.noise is None:
+        return None
+    fe = rx.design.frontend
+    return {"noise_figure_db": fe.noise_figure_db, "added": "F*k*T0 per Hz (matched source at 290 K)",
+            "kt0_dbm_per_hz": round(kt0_dbm_per_hz(), 4),
+            "density_dbm_per_hz": round(kt0_dbm_per_hz() + fe.noise_figure_db, 4),
+            "density_dbfs_per_hz": round(rx.noise.density_dbfs_per_hz, 4), "seed": fe.seed}
 
 
 def _round(d: dict) -> dict:

@@ -146,3 +146,36 @@ def test_bad_toml_file_is_named(tmp_path):
     q.write_text("[agc]\nrelease = 300\n")
     with pytest.raises(ParameterError, match=r"typo\.toml: agc\.release: unknown key; did you mean 'release_ms'\?"):
         load_chain(q)
+
+
+def test_frontend_is_optional_and_absent_by_default():
+    spec = parse_spec({})
+    assert spec.frontend.full_scale_dbm is None and spec.frontend.noise_figure_db is None
+    assert "frontend" not in spec_to_dict(spec)   # absent stays absent: no scale, no noise
+
+
+def test_frontend_keys_parse_and_round_trip():
+    spec = parse_spec({"frontend": {"full_scale_dbm": "-10 dBm", "noise_figure_db": "7 dB", "seed": 3}})
+    assert (spec.frontend.full_scale_dbm, spec.frontend.noise_figure_db, spec.frontend.seed) == (-10.0, 7.0, 3)
+    assert spec_to_dict(spec)["frontend"] == {"full_scale_dbm": -10.0, "noise_figure_db": 7.0, "seed": 3}
+    assert parse_spec(spec_to_dict(spec)) == spec
+    only_nf = parse_spec({"frontend": {"noise_figure_db": 0}})
+    assert spec_to_dict(only_nf)["frontend"] == {"noise_figure_db": 0.0, "seed": 0}
+
+
+@pytest.mark.parametrize("raw, match", [
+    ({"frontend": {"noise_figure": 10}}, r"^frontend\.noise_figure: unknown key; did you mean 'noise_figure_db'\?"),
+    ({"frontend": {"noise_figure_db": -1}}, r"^frontend\.noise_figure_db: -1 must lie from 0 to 60 dB$"),
+    ({"frontend": {"noise_figure_db": 75}}, r"^frontend\.noise_figure_db: 75 must lie from 0 to 60 dB$"),
+    ({"frontend": {"noise_figure_db": "low"}}, r"^frontend\.noise_figure_db: cannot read 'low' as a level in dB"),
+    ({"frontend": {"full_scale_dbm": 200}}, r"^frontend\.full_scale_dbm: 200 must be a power from -150 to 60 dBm$"),
+    ({"frontend": {"full_scale_dbm": "hot"}}, r"^frontend\.full_scale_dbm: cannot read 'hot' as a power in dBm$"),
+    ({"frontend": {"full_scale_dbm": True}}, r"^frontend\.full_scale_dbm: expected a power in dBm, got True$"),
+    ({"frontend": {"seed": -2}}, r"^frontend\.seed: expected a whole number >= 0, got -2$"),
+    ({"frontend": {"seed": 1.5}}, r"^frontend\.seed: expected a whole number >= 0, got 1\.5$"),
+    ({"frontend": 3}, r"^frontend: expected a table"),
+])
+def test_bad_frontend_raises_one_line_errors_naming_the_key(raw, match):
+    with pytest.raises(ParameterError, match=match) as exc:
+        parse_spec(raw)
+    assert "\n" not in str(exc.value)

@@ -2,6 +2,8 @@
 
 import json
 
+import numpy as np
+
 import pytest
 
 
@@ -70,3 +72,30 @@ def test_help_has_an_unwrapped_example(capsys):
     rc, out, err = run(["report", "--help"], capsys)
     assert rc == 0
     assert "    sdrx report medium --tune 1130k -o demo_out/report\n" in out
+
+
+@pytest.mark.parametrize("args, match", [
+    (["--noise-figure", "80"], "--noise-figure: 80 must lie from 0 to 60 dB"),
+    (["--noise-figure", "quiet"], "--noise-figure: cannot read 'quiet' as a level in dB"),
+    (["--noise-figure", "6", "--no-measure"], "--noise-figure 6: only applies to the measured figures"),
+])
+def test_bad_noise_figure_one_line_exit_2(args, match, tmp_path, capsys):
+    out = tmp_path / "rep"
+    rc, so, err = run(["report", "medium", "--tune", "1M", *args, "-o", str(out)], capsys)
+    assert rc == 2
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("sdrx: error: ") and match in lines[0], err
+    assert not out.exists()
+
+
+def test_noise_figure_option_moves_the_sensitivity(tmp_path, capsys):
+    out = tmp_path / "rep"
+    rc, so, err = run(["report", "narrow", "--tune", "1M", "--points", "7", "--noise-figure", "20", "--quiet",
+                       "-o", str(out)], capsys)
+    assert rc == 0, err
+    s = json.loads((out / "report.json").read_text())["measured"]["sensitivity"]
+    assert s["noise_figure_db"] == 20.0 and s["noise_figure_from"] == "--noise-figure"
+    # S/N = m²(C/N0)/(2W) with N0 = kT0 + NF: the prediction, recomputed from the reported W
+    want = 20 + 10 * np.log10(2 * s["noise_bandwidth_hz"]) - 20 * np.log10(0.3) - 174.0 + 20.0 + s["image_noise_db"]
+    assert s["predicted_dbm"] == pytest.approx(want, abs=0.05)
+    assert s["level_dbm"] == pytest.approx(want, abs=0.5)

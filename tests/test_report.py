@@ -192,3 +192,45 @@ def test_tune_outside_capture(capture):
 
     with pytest.raises(ParameterError, match="outside the band of capture"):
         build_report("medium", 1500e3, capture=capture[0], measure=False)
+
+
+def test_datasheet_sections_in_json_and_html(report, tmp_path):
+    m = report.data["measured"]
+    s = m["sensitivity"]
+    for k in ("level_dbm", "sn_db", "depth", "tone_hz", "predicted_dbm", "noise_bandwidth_hz", "noise_figure_db",
+              "points", "method", "source"):
+        assert k in s, k
+    assert s["depth"] == 0.3 and s["tone_hz"] == 1000.0 and s["sn_db"] == 20.0   # common practice: 30 %, 1 kHz
+    assert s["noise_figure_db"] == 10.0 and s["noise_figure_from"].startswith("report default")
+    assert abs(s["level_dbm"] - s["predicted_dbm"]) <= 1.5                     # the agreement
+    f = m["fidelity"]
+    assert f["low_3db_hz"] < 1000.0 < f["high_3db_hz"] and all(len(r) == 2 for r in f["response"])
+    assert f["response"][0][0] == 50.0 and f["response"][-1][0] == 10000.0
+    d = m["distortion"]
+    assert set(d["thd_percent"]) == {"0.3", "0.8", "0.95"} and d["deepest"] == 0.95
+    assert d["diagonal_clipping"] is None                                        # envelope detector
+    assert {"sensitivity.png", "fidelity.png", "distortion.png"} <= set(report.data["figures"])
+    write_report(report, tmp_path / "rep")
+    data, p = _check_html_against_json(tmp_path / "rep")
+    keys = {k for k, _ in p.keyed}
+    for k in ("measured.sensitivity.level_dbm", "measured.sensitivity.predicted_dbm",
+              "measured.fidelity.high_3db_hz", "measured.distortion.thd_percent.0.95"):
+        assert k in keys, k
+    page = (tmp_path / "rep" / "report.html").read_text()
+    for heading in ("<h2>Sensitivity</h2>", "<h2>Audio fidelity</h2>", "<h2>Distortion</h2>"):
+        assert page.count(heading) == 1
+    assert page.count("Haykin") >= 2 and page.count('data-name="distortion.png"') == 1
+
+
+def test_diode_report_draws_the_clipping_limit():
+    from sdrx.report.datasheet import datasheet_sections
+    from sdrx.chain import design_chain
+
+    d = design_chain({"detector": {"kind": "diode", "rc_us": 300}})
+    sec, figs = datasheet_sections(d, TUNE, 10e3)
+    clip = sec["distortion"]["diagonal_clipping"]
+    # source: diagonal-clipping limit RC <= sqrt(1-m²)/(2π fm m) (Haykin, Communication Systems), for fm
+    for k, m in (("0.3", 0.3), ("0.8", 0.8), ("0.95", 0.95)):
+        assert clip["onset_hz"][k] == pytest.approx(np.sqrt(1 - m * m) / (2 * np.pi * 300e-6 * m), abs=0.1)
+    assert sec["distortion"]["thd_percent"]["0.3"] < 0.01 < 5.0 < sec["distortion"]["thd_percent"]["0.8"]
+    assert figs["distortion.png"][:8] == b"\x89PNG\r\n\x1a\n"

@@ -425,7 +425,8 @@ def measure_levels_dbfs(design, tune_hz, freqs_hz, spacing_hz=10e3, *, path="fas
 
     Notes
     -----
-    Single-signal method with the AGC held (ITU-R SM.332): one receiver per
+    Single-signal method with the AGC held (ITU-R SM.332), free of the
+    front end's thermal noise (a strong-signal measurement): one receiver per
     carrier, fed ``settle_s + measure_s`` of the carrier; the level is
     ``rx.stats(settle_s)["carrier_dbfs"]["mean"]``, the mean over the 10 ms
     windows after ``settle_s``.
@@ -439,7 +440,7 @@ def measure_levels_dbfs(design, tune_hz, freqs_hz, spacing_hz=10e3, *, path="fas
     freqs = np.atleast_1d(np.asarray(freqs_hz, dtype=float))
     out = np.empty(freqs.size)
     for i, f in enumerate(freqs):
-        rx = Receiver(design, info, tune_hz, path=path, agc_hold_gain_db=hold_gain_db)
+        rx = Receiver(design, info, tune_hz, path=path, agc_hold_gain_db=hold_gain_db, thermal_noise=False)
         x = amplitude * np.exp(2j * math.pi * (f - info.center_hz) * t)
         rx.process(x.astype(np.complex64))
         rx.flush()

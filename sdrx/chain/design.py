@@ -322,6 +322,11 @@ class ChainDesign:
     def audio(self):
         return self.spec.audio
 
+    @property
+    def frontend(self):
+        """The spec's [frontend]: full scale in dBm and noise figure (each None when absent)."""
+        return self.spec.frontend
+
     def lo_hz(self, tune_hz: float) -> float:
         """LO frequency: tune + IF (high-side) or tune − IF (low-side)."""
         return lo_frequency(tune_hz, self.if_hz, self.injection)

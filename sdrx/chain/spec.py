@@ -30,12 +30,17 @@ __all__ = [
     "AgcSpec",
     "DetectorSpec",
     "AudioSpec",
+    "FrontendSpec",
     "ChainSpec",
     "parse_spec",
     "load_chain",
     "list_presets",
     "spec_to_dict",
     "PRESET_DIR",
+    "parse_full_scale_dbm",
+    "check_noise_figure_db",
+    "FULL_SCALE_DBM_RANGE",
+    "NOISE_FIGURE_DB_RANGE",
 ]
 
 PRESET_DIR = Path(__file__).with_name("presets")
@@ -118,6 +123,78 @@ class AudioSpec:
     gain_db: float = 6.0
 
 
+@dataclass(frozen=True)
+class FrontendSpec:
+    """The front end's absolute scale and noise (both optional).
+
+    ``full_scale_dbm``: antenna power, dBm, of a carrier at full scale
+    (0 dBFS). ``noise_figure_db``: the receiver's noise figure referred to
+    the antenna; when set, the chain adds the thermal noise F·kT0·B of a
+    matched source at T0 = 290 K seen through that noise figure
+    (:mod:`sdrx.dsp.thermal`). ``seed`` picks the noise sequence.
+    """
+
+    full_scale_dbm: float | None = None
+    noise_figure_db: float | None = None
+    seed: int = 0
+
+
+#: Accepted range of ``frontend.full_scale_dbm`` and ``--full-scale-dbm``, dBm.
+FULL_SCALE_DBM_RANGE = (-150.0, 60.0)
+#: Accepted range of ``frontend.noise_figure_db``, dB (0 dB: a noiseless receiver).
+NOISE_FIGURE_DB_RANGE = (0.0, 60.0)
+
+
+def parse_full_scale_dbm(value, name: str = "--full-scale-dbm") -> float:
+    """A full-scale power in dBm: a number or a string such as ``"-10 dBm"``, within range.
+
+    Raises
+    ------
+    ParameterError
+        Not a number, not finite, or outside :data:`FULL_SCALE_DBM_RANGE`.
+
+    Examples
+    --------
+    >>> parse_full_scale_dbm("-10 dBm"), parse_full_scale_dbm(5)
+    (-10.0, 5.0)
+    """
+    if isinstance(value, str):
+        text = value.strip()
+        if text.lower().endswith("dbm"):
+            text = text[:-3]
+        try:
+            out = float(text)
+        except ValueError:
+            raise ParameterError(f"{name}: cannot read {value!r} as a power in dBm") from None
+    elif isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise ParameterError(f"{name}: expected a power in dBm, got {value!r}")
+    else:
+        out = float(value)
+    lo, hi = FULL_SCALE_DBM_RANGE
+    if not math.isfinite(out) or not lo <= out <= hi:
+        raise ParameterError(f"{name}: {value!r} must be a power from {lo:g} to {hi:g} dBm")
+    return out
+
+
+def check_noise_figure_db(value: float, name: str = "--noise-figure") -> float:
+    """A noise figure in dB within :data:`NOISE_FIGURE_DB_RANGE`.
+
+    Raises
+    ------
+    ParameterError
+        Outside the range.
+
+    Examples
+    --------
+    >>> check_noise_figure_db(7.0)
+    7.0
+    """
+    lo, hi = NOISE_FIGURE_DB_RANGE
+    if not lo <= value <= hi:
+        raise ParameterError(f"{name}: {value:g} must lie from {lo:g} to {hi:g} dB")
+    return float(value)
+
+
 def _default_stages():
     return (
         IfStageSpec(response="butterworth", order=2, bandwidth_hz=9e3, gain_db=30.0, agc=True),
@@ -140,6 +217,7 @@ class ChainSpec:
     detector: DetectorSpec = field(default_factory=DetectorSpec)
     audio: AudioSpec = field(default_factory=AudioSpec)
     source: str = "<defaults>"
+    frontend: FrontendSpec = field(default_factory=FrontendSpec)
 
 
 # key name in TOML -> (field name, kind)
@@ -154,6 +232,7 @@ _TOP_KEYS = {
     "agc": None,
     "detector": None,
     "audio": None,
+    "frontend": None,
 }
 _PRESELECTOR_KEYS = {
     "kind": ("kind", PRESELECTOR_KINDS),
@@ -202,6 +281,12 @@ _AUDIO_KEYS = {
     "gain_db": ("gain_db", "float"),
 }
 
+_FRONTEND_KEYS = {
+    "full_scale_dbm": ("full_scale_dbm", "dbm"),
+    "noise_figure_db": ("noise_figure_db", "db"),
+    "seed": ("seed", "seed"),
+}
+
 
 def _check_keys(table: Mapping, allowed: Mapping, where: str) -> None:
     for key in table:
@@ -235,6 +320,12 @@ def _convert(value: Any, kind, path: str):
     if kind == "order":
         if isinstance(value, bool) or not isinstance(value, int) or not 1 <= value <= 12:
             raise ParameterError(f"{path}: expected a whole number from 1 to 12, got {value!r}")
+        return value
+    if kind == "dbm":
+        return parse_full_scale_dbm(value, path)
+    if kind == "seed":
+        if isinstance(value, bool) or not isinstance(value, int) or not 0 <= value < 2 ** 63:
+            raise ParameterError(f"{path}: expected a whole number >= 0, got {value!r}")
         return value
     if kind in ("float", "posfloat", "nonneg", "db"):
         if kind == "db" and isinstance(value, str):
@@ -379,6 +470,9 @@ def parse_spec(raw: Mapping, source: str = "<spec>", default_name: str | None = 
         )
     if not 8000 <= audio.rate_hz <= 192000 or audio.rate_hz != int(audio.rate_hz):
         raise ParameterError(f"audio.rate: {audio.rate_hz:g} must be a whole number of Hz from 8000 to 192000")
+    frontend = _build(FrontendSpec, _table(raw, "frontend"), _FRONTEND_KEYS, "frontend")
+    if frontend.noise_figure_db is not None:
+        check_noise_figure_db(frontend.noise_figure_db, "frontend.noise_figure_db")
     name = top.get("name", default_name or "custom")
     return ChainSpec(
         name=name,
@@ -392,6 +486,7 @@ def parse_spec(raw: Mapping, source: str = "<spec>", default_name: str | None = 
         detector=detector,
         audio=audio,
         source=source,
+        frontend=frontend,
     )
 
 
@@ -477,7 +572,7 @@ def spec_to_dict(spec: ChainSpec) -> dict:
             out[key] = getattr(obj, fname)
         return out
 
-    return {
+    out = {
         "name": spec.name,
         "description": spec.description,
         "if_frequency": spec.if_hz,
@@ -489,6 +584,10 @@ def spec_to_dict(spec: ChainSpec) -> dict:
         "detector": inv(spec.detector, _DETECTOR_KEYS),
         "audio": inv(spec.audio, _AUDIO_KEYS),
     }
+    # [frontend] only when the spec sets it (its keys are optional; absent = no absolute scale, no noise)
+    if spec.frontend != FrontendSpec():
+        out["frontend"] = {k: v for k, v in inv(spec.frontend, _FRONTEND_KEYS).items() if v is not None}
+    return out
 
 
 def _stage_to_dict(stage: IfStageSpec, keys: dict) -> dict:

@@ -29,6 +29,9 @@ def _list_chains(ctx, _param, value):
 @click.option("--path", "path", type=click.Choice(["fast", "exact"]), default="fast", show_default=True,
               help="fast: complex-envelope equivalent; exact: a real IF at an IF sample rate.")
 @click.option("--if-rate", default=None, metavar="HZ", help="Exact path: IF sample rate (default: chosen automatically).")
+@click.option("--full-scale-dbm", "full_scale_dbm", default=None, metavar="DBM",
+              help="Antenna power of a full-scale carrier in this capture, e.g. -10 (overrides the spec's "
+                   "frontend.full_scale_dbm): carrier levels in dBm, thermal noise placed in dBFS.")
 @click.option("--float", "float_output", is_flag=True, help="Write 32-bit float WAV instead of 16-bit PCM.")
 @click.option("--force", is_flag=True, help="Replace existing outputs.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
@@ -39,7 +42,8 @@ def _list_chains(ctx, _param, value):
                    "broadcast carriers that --correct clock estimates the clock error from.")
 @correction_options
 @capture_options
-def command(capture, tune, chain, out, summary, path, if_rate, float_output, force, quiet, spacing, correct, ppm,
+def command(capture, tune, chain, out, summary, path, if_rate, full_scale_dbm, float_output, force, quiet, spacing,
+            correct, ppm,
             datatype, rate, center, start, duration):
     """Receive one station of CAPTURE through a superheterodyne chain; write its audio.
 
@@ -58,14 +62,16 @@ def command(capture, tune, chain, out, summary, path, if_rate, float_output, for
         s = receive(capture, tune, chain, out, summary_path=summary, path=path, start_s=start,
                     duration_s=duration, float_output=float_output, force=force, progress=bar,
                     datatype=datatype, fs=rate, center_hz=center, if_rate_hz=if_rate, correct=correct, ppm=ppm,
-                    spacing_hz=spacing)
+                    spacing_hz=spacing, full_scale_dbm=full_scale_dbm)
     finally:
         if bar is not None:
             bar.close()
     c = s["carrier_dbfs"]
+    dbm = s["carrier_dbm"]
+    in_dbm = f" = {dbm['mean']:.1f} dBm" if dbm is not None and dbm["mean"] is not None else ""
     click.echo(
         f"{out}: {s['output']['seconds']:.3f} s at {s['output']['rate_hz']:g} Hz; "
-        f"carrier {c['mean']:.1f} dBFS (min {c['min']:.1f}, max {c['max']:.1f}); "
+        f"carrier {c['mean']:.1f} dBFS{in_dbm} (min {c['min']:.1f}, max {c['max']:.1f}); "
         f"LO {s['lo_hz'] / 1e3:g} kHz, image {s['image_hz'] / 1e3:g} kHz"
         if c["mean"] is not None else f"{out}: {s['output']['seconds']:.3f} s"
     )

@@ -21,15 +21,19 @@ __all__ = ["command"]
 @click.option("--points", default=31, show_default=True, type=int,
               help="Test carriers across +-3 channel spacings for the measured curve.")
 @click.option("--no-measure", is_flag=True, help="Designed figures only (skip the test-carrier runs).")
+@click.option("--noise-figure", "noise_figure", default=None, metavar="DB",
+              help="Noise figure of the measured sensitivity (default: the spec's frontend.noise_figure_db, "
+                   "else 10 dB).")
 @click.option("-o", "--output", "out_dir", required=True, metavar="DIR",
               help="Folder for report.json, report.html and the PNG figures (created if missing).")
 @click.option("--force", is_flag=True, help="Replace report files already in DIR.")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary line.")
 @correction_options
 @capture_options
-def command(chain, tune, capture, spacing, path, points, no_measure, out_dir, force, quiet, correct, ppm,
+def command(chain, tune, capture, spacing, path, points, no_measure, noise_figure, out_dir, force, quiet, correct,
+            ppm,
             datatype, rate, center, start, duration):
-    """Selectivity and image report: designed and measured figures, equivalent Q, figures.
+    """Selectivity, image and datasheet report: designed and measured figures, sensitivity, fidelity, THD.
 
     Example:
 
@@ -53,6 +57,15 @@ def command(chain, tune, capture, spacing, path, points, no_measure, out_dir, fo
         if parse_seconds(start, "--start") != 0:
             raise ParameterError(f"--start {start}: only applies with --capture CAPTURE")
 
+    nf = None
+    if noise_figure is not None:
+        from ..chain.spec import check_noise_figure_db
+        from ..units import parse_db
+
+        if no_measure:
+            raise ParameterError(f"--noise-figure {noise_figure}: only applies to the measured figures (drop --no-measure)")
+        nf = check_noise_figure_db(parse_db(noise_figure, "--noise-figure"), "--noise-figure")
+
     # refuse an existing output before any work
     d = Path(out_dir)
     if d.is_dir() and not force:
@@ -65,7 +78,7 @@ def command(chain, tune, capture, spacing, path, points, no_measure, out_dir, fo
     bar = progress_for("measuring", quiet)
     try:
         rep = build_report(chain, tune, spacing_hz=spacing, capture=capture, path=path, measure=not no_measure,
-                           points=points, start_s=start_s, duration_s=duration_s, progress=bar,
+                           points=points, start_s=start_s, duration_s=duration_s, progress=bar, noise_figure_db=nf,
                            capture_kw=capture_kwargs(datatype, rate, center) if capture else None,
                            correct=correct if capture else None, ppm=ppm)
     finally:

@@ -59,15 +59,24 @@ class Receiver:
         mixing product of the captured band).
     spacing_hz : float
         Channel spacing, for the adjacent-channel checks (10 kHz: ITU Region 2).
+    full_scale_dbm : float, optional
+        Antenna power of a full-scale carrier for this capture (overrides
+        the spec's ``frontend.full_scale_dbm``).
+    thermal_noise : bool
+        Add the front end's thermal noise F·k·T0 when the spec gives
+        ``frontend.noise_figure_db`` (see :mod:`sdrx.dsp.thermal`); False
+        leaves it out (noise-free bench measurements).
 
     Raises
     ------
     ParameterError
-        Tuning outside the capture, unknown path, unusable IF rate.
+        Tuning outside the capture, unknown path, unusable IF rate; a noise
+        figure without a full scale to place the noise in dBFS.
     """
 
     def __init__(self, design, info, tune_hz: float, path: str = "fast", agc_hold_gain_db=None,
-                 first_sample: int = 0, if_rate_hz=None, spacing_hz: float = 10e3):
+                 first_sample: int = 0, if_rate_hz=None, spacing_hz: float = 10e3, full_scale_dbm=None,
+                 thermal_noise: bool = True):
         if path not in PATHS:
             raise ParameterError(f"--path {path!r}: choose one of {', '.join(PATHS)}")
         self.design = design
@@ -75,6 +84,8 @@ class Receiver:
         self.tune_hz = float(tune_hz)
         self.path = path
         self.warnings: list = []
+        self.full_scale_dbm = design.frontend.full_scale_dbm if full_scale_dbm is None else float(full_scale_dbm)
+        self.noise = self._thermal_noise(design.frontend, info) if thermal_noise else None
         lo, hi = info.band_hz
         name = getattr(info, "path", "capture")
         if not lo < tune_hz < hi:
@@ -133,6 +144,7 @@ class Receiver:
                                skip_ch=self._pre_ch)
         self.audio_fs = float(design.audio.rate_hz)
         self._ref = float(abs(design.rf_response(tune_hz, tune_hz)[0]))
+        self._first = int(first_sample)
         self._n_in = 0
         self._n_out = 0
         self._drop = self.backend.resampler.delay_out + self._pre_audio
@@ -185,6 +197,20 @@ class Receiver:
             out.append(self._feed(head))
         return np.concatenate(out)
 
+    def _thermal_noise(self, frontend, info):
+        """The front end's noise source, or None when the spec gives no noise figure."""
+        from ..dsp.thermal import ThermalNoise, thermal_density_dbfs_per_hz
+
+        nf = frontend.noise_figure_db
+        if nf is None:
+            return None
+        if self.full_scale_dbm is None:
+            raise ParameterError(
+                f"frontend.noise_figure_db: {nf:g} dB needs the antenna power of full scale to place the "
+                "thermal noise; set frontend.full_scale_dbm in the chain spec or give --full-scale-dbm")
+        density = thermal_density_dbfs_per_hz(nf, self.full_scale_dbm)
+        return ThermalNoise(density, info.fs, info.kind, frontend.seed)
+
     @property
     def delay_s(self) -> float:
         """Group delay of the analog chain (IF stages at the carrier, audio filters at 1 kHz), s."""
@@ -221,6 +247,8 @@ class Receiver:
         """
         if self._flushed:
             raise RuntimeError("Receiver already flushed")
+        if self.noise is not None:
+            block = self.noise.add(block, self._first + self._n_in)
         self._n_in += len(block)
         if not self._started:
             self._head.append(np.array(block))
@@ -252,6 +280,8 @@ class Receiver:
         if self._pool is not None:
             self._pool.shutdown(wait=True)
             self._pool = None
+        if self.noise is not None:
+            self.noise.close()
         target = int(math.floor(self._n_in * self.audio_fs / self.info.fs + 1e-9))
         # the front end's tail runs past the input (zero padding, so the filters ring down as
         # after a real end of signal); the level statistics count only the input's duration
@@ -281,6 +311,8 @@ class Receiver:
         close = getattr(self.front, "close", None)
         if close is not None:
             close()
+        if self.noise is not None:
+            self.noise.close()
 
     def _finish_warnings(self) -> None:
         self.checks = self.monitor.checks()

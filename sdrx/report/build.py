@@ -116,7 +116,8 @@ def _carriers(reader, design, tune_hz, spacing_hz, start_s, duration_s, progress
 
 
 def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", measure=True, points=31,
-                 start_s=0.0, duration_s=None, progress=None, capture_kw=None, correct=None, ppm=None) -> Report:
+                 start_s=0.0, duration_s=None, progress=None, capture_kw=None, correct=None, ppm=None,
+                 noise_figure_db=None) -> Report:
     """Build the selectivity and image report of a chain at one tuning.
 
     Parameters
@@ -143,6 +144,9 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
     correct, ppm : optional
         Capture corrections (``--correct``, ``--ppm``): the carriers and the
         spectrum are those of the corrected capture.
+    noise_figure_db : float, optional
+        Noise figure of the measured sensitivity (default: the spec's
+        ``frontend.noise_figure_db``, else 10 dB); see :mod:`sdrx.report.datasheet`.
 
     Returns
     -------
@@ -229,6 +233,11 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
         meas["method_detail"] = MEASURE_METHOD
         meas["difference"] = _difference(meas, des, dres)
         meas["agc"] = measure_agc(design, tune, path)
+        from .datasheet import datasheet_sections
+
+        sections, datasheet_figs = datasheet_sections(design, tune, spacing, path=path,
+                                                      noise_figure_db=noise_figure_db, progress=progress)
+        meas.update(sections)
 
     lo_hz = design.lo_hz(tune)
     image = design.image_hz(tune)
@@ -277,6 +286,8 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
             f[near], lv[near], tune, (tune + e6[0], tune + e6[1]) if None not in e6 else (tune, tune), image, cars,
             image_freqs_hz=f[nim] if nim.sum() > 4 else None, image_level_dbfs=lv[nim] if nim.sum() > 4 else None,
             title=f"Capture spectrum - {title}")
+    if meas is not None:
+        figs.update(datasheet_figs)
     data["figures"] = sorted(figs)
     return Report(data, figs)
 

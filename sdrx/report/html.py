@@ -30,15 +30,30 @@ def lookup(data, key: str):
     --------
     >>> lookup({"a": {"b": [1.5, 2.0]}}, "a.b.1")
     2.0
+    >>> lookup({"thd": {"0.95": 1.2}}, "thd.0.95")
+    1.2
     """
     cur = data
-    for part in _split(key):
-        cur = cur[int(part)] if isinstance(cur, list) else cur[part]
+    parts = _split(key)
+    i = 0
+    while i < len(parts):
+        part = parts[i]
+        if isinstance(cur, list):
+            cur = cur[int(part)]
+        else:
+            # a key may itself hold dots (the depths "0.95" of measured.distortion): take the
+            # shortest run of parts that names a key
+            j = i
+            while part not in cur and j + 1 < len(parts):
+                j += 1
+                part += "." + parts[j]
+            cur = cur[part]
+            i = j
+        i += 1
     return cur
 
 
 def _split(key):
-    # keys of adjacent_rejection_db are signed integers ("-10000") and never contain dots
     return key.split(".")
 
 
@@ -168,6 +183,8 @@ def render_html(data: dict, figures: dict) -> str:
     -------
     str
     """
+    from .datasheet_html import DATASHEET_FIGURES, datasheet_html
+
     d = data
     title = f"sdrx report: {d['chain']} tuned to {d['tune_hz'] / 1e3:g} kHz"
     parts = [
@@ -208,6 +225,7 @@ def render_html(data: dict, figures: dict) -> str:
     parts.append('<p class="note">Method: %s.</p>' % _e(gd["method"]))
     if d.get("measured") is not None and d["measured"].get("agc"):
         parts.append(_agc_section(d, figures))
+    parts.append(datasheet_html(d, figures))
     if d.get("carriers") is not None:
         parts.append("<h2>Carriers in the capture near the tuning</h2>")
         parts.append('<p class="note">Capture: %s</p>' % _e(d["capture"]["path"]))
@@ -215,7 +233,8 @@ def render_html(data: dict, figures: dict) -> str:
             parts.append(_img("spectrum.png", figures["spectrum.png"], "capture spectrum"))
         parts.append(_carrier_table(d))
     for name in sorted(figures):
-        if name not in ("selectivity.png", "stages.png", "image.png", "group_delay.png", "spectrum.png", "agc.png"):
+        if name not in ("selectivity.png", "stages.png", "image.png", "group_delay.png", "spectrum.png",
+                        "agc.png") + DATASHEET_FIGURES:
             parts.append(_img(name, figures[name], name))
     parts.append("</body></html>\n")
     return "\n".join(parts)

@@ -1,0 +1,119 @@
+"""The report page's datasheet sections: sensitivity, audio fidelity, distortion.
+
+One section per measurement, each with its figure, a table of its numbers
+(tagged with ``data-key`` like the rest of the page, so they can be checked
+against ``report.json``), its method and its source.
+"""
+
+from __future__ import annotations
+
+from .html import _e, _img, _num, _row
+
+__all__ = ["datasheet_html", "DATASHEET_FIGURES"]
+
+#: The figures of the datasheet sections (embedded here, not again at the end of the page).
+DATASHEET_FIGURES = ("sensitivity.png", "fidelity.png", "distortion.png")
+
+
+def _notes(sec) -> str:
+    return ('<p class="note">Method (%s path): %s.</p><p class="note">Source: %s.</p>'
+            % (_e(sec["path"]), _e(sec["method"]), _e(sec["source"])))
+
+
+def _text(value) -> str:
+    return "<td>%s</td>" % _e(value)
+
+
+def _head(figures, title, name, alt) -> list:
+    """The section's heading and its figure."""
+    out = [f"<h2>{_e(title)}</h2>"]
+    if name in figures:
+        out.append(_img(name, figures[name], alt))
+    return out
+
+
+def _sensitivity(data, figures) -> list:
+    sec = data["measured"]["sensitivity"]
+    k = "measured.sensitivity."
+    out = _head(figures, "Sensitivity", "sensitivity.png", "audio S/N against antenna level")
+    rows = [
+        "<tr><th>quantity</th><th>measured</th><th>predicted</th><th>difference</th></tr>",
+        _row(f"carrier level for {sec['sn_db']:g} dB audio S/N, dBm",
+             [_num(data, k + "level_dbm"), _num(data, k + "predicted_dbm"), _num(data, k + "difference_db")]),
+    ]
+    out.append("<table>" + "".join(rows) + "</table>")
+    rows = [
+        _row("modulation depth", [_num(data, k + "depth")]),
+        _row("modulating frequency, Hz", [_num(data, k + "tone_hz")]),
+        _row("noise figure, dB", [_num(data, k + "noise_figure_db"), _text(sec["noise_figure_from"])]),
+        _row("kT0, dBm/Hz", [_num(data, k + "kt0_dbm_per_hz"), _text(sec["noise_added"])]),
+        _row("full scale at the antenna, dBm", [_num(data, k + "full_scale_dbm"), _text(sec["full_scale_from"])]),
+        _row("post-detection noise bandwidth W, Hz", [_num(data, k + "noise_bandwidth_hz")]),
+        _row("noise through the image response, dB", [_num(data, k + "image_noise_db")]),
+        _row("slope of S/N against level, dB/dB", [_num(data, k + "slope_db_per_db")]),
+    ]
+    out.append("<table>" + "".join(rows) + "</table>")
+    rows = ["<tr><th>level, dBm</th><th>audio S/N, dB</th></tr>"]
+    for i in range(len(sec["points"])):
+        rows.append("<tr>%s%s</tr>" % (_num(data, f"{k}points.{i}.0"), _num(data, f"{k}points.{i}.1")))
+    out.append("<table>" + "".join(rows) + "</table>")
+    out.append(_notes(sec))
+    return out
+
+
+def _fidelity(data, figures) -> list:
+    sec = data["measured"]["fidelity"]
+    k = "measured.fidelity."
+    out = _head(figures, "Audio fidelity", "fidelity.png", "antenna-to-audio response")
+    rows = [
+        "<tr><th>quantity</th><th>measured</th><th>predicted</th></tr>",
+        _row("low -3 dB point, Hz", [_num(data, k + "low_3db_hz"), _num(data, k + "predicted_low_3db_hz")]),
+        _row("high -3 dB point, Hz", [_num(data, k + "high_3db_hz"), _num(data, k + "predicted_high_3db_hz")]),
+    ]
+    out.append("<table>" + "".join(rows) + "</table>")
+    out.append('<p class="note">Largest difference between measured and predicted points down to -20 dB: '
+               '<span data-key="%smax_abs_difference_db_down_to_20">%s</span> dB; response in dB re '
+               '<span data-key="%sreference_hz">%s</span> Hz, carrier at '
+               '<span data-key="%slevel_dbfs">%s</span> dBFS.</p>'
+               % (k, _e(sec["max_abs_difference_db_down_to_20"]), k, _e(sec["reference_hz"]), k,
+                  _e(sec["level_dbfs"])))
+    rows = ["<tr><th>modulating frequency, Hz</th><th>measured, dB</th><th>predicted, dB</th></tr>"]
+    for i in range(len(sec["response"])):
+        rows.append("<tr>%s%s%s</tr>" % (_num(data, f"{k}response.{i}.0"), _num(data, f"{k}response.{i}.1"),
+                                         _num(data, f"{k}predicted.{i}.1")))
+    out.append("<table>" + "".join(rows) + "</table>")
+    out.append(_notes(sec))
+    return out
+
+
+def _distortion(data, figures) -> list:
+    sec = data["measured"]["distortion"]
+    k = "measured.distortion."
+    clip = sec["diagonal_clipping"]
+    out = _head(figures, "Distortion", "distortion.png", "THD against modulating frequency")
+    head = f"<tr><th>modulation depth</th><th>THD at {sec['tone_hz']:g} Hz, %</th>"
+    if clip is not None:
+        head += "<th>diagonal clipping from, Hz</th><th>largest RC free of clipping at the tone, µs</th>"
+    rows = [head + "</tr>"]
+    for depth in sorted(sec["thd_percent"], key=float):
+        cells = [_num(data, f"{k}thd_percent.{depth}")]
+        if clip is not None:
+            cells += [_num(data, f"{k}diagonal_clipping.onset_hz.{depth}"),
+                      _num(data, f"{k}diagonal_clipping.limit_rc_us_at_tone.{depth}")]
+        rows.append(_row(f"{float(depth) * 100:g} %", cells))
+    out.append("<table>" + "".join(rows) + "</table>")
+    if clip is not None:
+        out.append('<p class="note">Diode detector, RC <span data-key="%sdiagonal_clipping.rc_us">%s</span> µs: '
+                   "free of diagonal clipping while %s.</p>" % (k, _e(clip["rc_us"]), _e(clip["formula"])))
+    out.append(_notes(sec))
+    return out
+
+
+def datasheet_html(data: dict, figures: dict) -> str:
+    """The sensitivity, fidelity and distortion sections ("" when the report has none of them)."""
+    meas = data.get("measured") or {}
+    parts = []
+    for key, fn in (("sensitivity", _sensitivity), ("fidelity", _fidelity), ("distortion", _distortion)):
+        if meas.get(key) is not None:
+            parts += fn(data, figures)
+    return "\n".join(parts)
