@@ -24,7 +24,7 @@ def test_sinad_of_tone_plus_noise(rng, snr_db):
     tone = np.sqrt(2) * np.cos(2 * np.pi * 1000 * t + 0.3)  # power 1
     noise = rng.standard_normal(n) * 10 ** (-snr_db / 20)  # power 10^(-snr/10)
     got = sinad_db(tone + noise, FS, 1000.0)
-    # common practice (receiver measurement texts): SINAD = (S + N + D) / (N + D)
+    # source: SINAD = (S + N + D) / (N + D), IEEE Std 1241-2010 (from memory)
     expect = 10 * np.log10((1 + 10 ** (-snr_db / 10)) / 10 ** (-snr_db / 10))
     assert got == pytest.approx(expect, abs=0.1)
 
@@ -33,14 +33,15 @@ def test_sinad_counts_distortion(rng):
     n = int(2 * FS)
     t = np.arange(n) / FS
     x = np.cos(2 * np.pi * 1000 * t) + 0.01 * np.cos(2 * np.pi * 3000 * t)  # 1 % third harmonic
-    # common practice: with distortion alone SINAD = 10 log10((1 + d^2) / d^2), d the harmonic ratio
+    # the same definition with distortion alone: SINAD = 10 log10((1 + d^2) / d^2), d the harmonic ratio
     assert sinad_db(x, FS, 1000.0) == pytest.approx(10 * np.log10((1 + 1e-4) / 1e-4), abs=0.05)
 
 
 @pytest.mark.parametrize("order,fc", [(8, 3000.0), (6, 2000.0)])
 def test_audio_bandwidth_of_butterworth_noise(rng, order, fc):
     x = signal.sosfilt(signal.butter(order, fc, fs=FS, output="sos"), rng.standard_normal(int(8 * FS)))
-    # source: Butterworth attenuation 10 log10(1 + (f/fc)^(2n)) (filter handbooks): 20 dB at fc * 99^(1/(2n))
+    # source: Butterworth attenuation 10 log10(1 + (f/fc)^(2n)) (Williams & Taylor, Electronic Filter Design
+    # Handbook, 4th ed. (2006), ch. 2 (from memory)): 20 dB at fc * 99^(1/(2n))
     expect = fc * 99 ** (1 / (2 * order))
     assert audio_bandwidth_hz(x, FS) == pytest.approx(expect, rel=0.03)
 

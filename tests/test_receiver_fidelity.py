@@ -48,7 +48,7 @@ def _audio_tail(audio):
 
 @pytest.mark.parametrize("path", ["fast", "exact"])
 def test_sinad_of_a_30_percent_station_at_60_db_cn_with_the_default_chain(path, rng):
-    # source: bench test signal 1 kHz at 30 % modulation — common practice (receiver measurement texts)
+    # bench test signal 1 kHz at 30 % modulation (common practice)
     x = _station(0.3, 0.3, cn_db=60.0, rng=rng)
     audio, rx = run_receiver(design_chain("medium"), INFO, TUNE, x, path=path)
     assert len(audio) == int(0.3 * AFS)
@@ -61,7 +61,8 @@ def test_sinad_falls_with_carrier_to_noise(rng):
     hi = sinad_db(_audio_tail(run_receiver(d, INFO, TUNE, _station(0.3, 0.3, cn_db=50.0, rng=rng))[0]), AFS, FM)
     lo = sinad_db(_audio_tail(run_receiver(d, INFO, TUNE, _station(0.3, 0.3, cn_db=30.0, rng=rng))[0]), AFS, FM)
     # above threshold the envelope detector is linear in noise: 20 dB less C/N, about 20 dB less SINAD
-    # source: AM detection above threshold, communication-systems texts (figure of merit m²/(2+m²))
+    # source: AM detection above threshold, Haykin, Communication Systems, 4th ed. (Wiley, 2001), ch. 2 (from
+    # memory) (figure of merit m²/(2+m²))
     assert hi - lo == pytest.approx(20.0, abs=2.0)
 
 
@@ -83,7 +84,8 @@ def test_ideal_envelope_detector_thd_at_80_percent_depth_is_below_1_percent(path
 
 def test_diode_detector_rc_above_the_diagonal_clipping_limit_clips_and_warns():
     m = 0.8
-    limit = math.sqrt(1 - m * m) / (2 * math.pi * FM * m)   # source: diode-detector analysis, communication-systems texts
+    # source: diagonal clipping, Haykin, Communication Systems, 4th ed. (Wiley, 2001), ch. 2 (from memory)
+    limit = math.sqrt(1 - m * m) / (2 * math.pi * FM * m)
     assert diagonal_clipping_limit_s(m, FM) == pytest.approx(limit, rel=1e-12)
     assert limit == pytest.approx(119.4e-6, rel=1e-3)
     rc_us = 2 * limit * 1e6
@@ -104,7 +106,7 @@ def test_diode_detector_rc_well_below_the_limit_stays_clean():
 
 def test_diode_clipping_grows_with_rc():
     m = 0.8
-    limit_us = math.sqrt(1 - m * m) / (2 * math.pi * FM * m) * 1e6   # source: diode-detector analysis
+    limit_us = math.sqrt(1 - m * m) / (2 * math.pi * FM * m) * 1e6   # source: diagonal clipping (same source)
     values = []
     for factor in (0.9, 2.0, 4.0):
         audio, _ = run_receiver(_chain({"kind": "diode", "rc_us": factor * limit_us}), INFO, TUNE, _station(m, 0.2))

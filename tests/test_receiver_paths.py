@@ -4,7 +4,7 @@ A multi-station capture (1.2 MS/s, 0.2 s) holds the wanted station, its
 adjacent channels, a station elsewhere in the band and one on the image
 frequency. Agreement is 10·log10(Σa²/Σ(a−b)²) after the first 50 ms; the
 issue asks ≥ 40 dB. The reference is the exact path, whose mixer really
-multiplies (source: physical identity — DESIGN.md's fast-path equation is the
+multiplies (source: physical identity — the fast path's complex-envelope equation is the
 complex-envelope form of the same product).
 """
 

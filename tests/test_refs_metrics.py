@@ -42,7 +42,8 @@ def test_snr_matches_definition_across_blocks(tmp_path, rng):
     r, w = wav(tmp_path / "r.wav", x), wav(tmp_path / "n.wav", y)
     c = compare_audio(r, w, Tolerance(snr_db=40))
     xr, yr = back(r), back(w)
-    # source: SNR definition in the issue, 10 log10(sum ref^2 / sum (new-ref)^2), computed in one shot
+    # source: the SNR as defined in the README (refs tolerances), 10 log10(sum ref^2 / sum (new-ref)^2),
+    # computed in one shot
     expect = 10 * np.log10(np.sum(xr ** 2) / np.sum((yr - xr) ** 2))
     assert c.snr_db == pytest.approx(expect, rel=1e-9)
     assert c.passed and not c.identical

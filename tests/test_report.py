@@ -175,7 +175,8 @@ def test_capture_carriers_and_spectrum(capture, tmp_path):
     assert set(truth) <= set(cars)
     for f, a in truth.items():
         c = cars[f]
-        # level convention (contracts): 20 log10 of the carrier amplitude; survey's accuracy is its own test
+        # level convention (README, file formats): 20 log10 of the carrier amplitude; the survey's accuracy
+        # is its own test
         assert c["antenna_dbfs"] == pytest.approx(20 * np.log10(a), abs=0.5)
         assert c["offset_hz"] == f - TUNE
         assert c["detector_dbfs"] == pytest.approx(c["antenna_dbfs"] + c["selectivity_db"], abs=2e-3)

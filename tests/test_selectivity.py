@@ -26,7 +26,9 @@ def _scipy_relative_db(design, tune, f):
         h *= hs / h0
     q = design.preselector.q
     rho = f / tune - tune / f
-    h *= 1 / (1 + 1j * q * rho)  # source: universal resonance curve (tracking single-tuned preselector)
+    h *= 1 / (1 + 1j * q * rho)
+    # source: universal resonance curve, Terman, Radio Engineers' Handbook (McGraw-Hill, 1943), sec. 3 (from
+    # memory) (tracking single-tuned preselector)
     return 20 * np.log10(np.abs(h))
 
 
@@ -56,8 +58,10 @@ def test_butterworth_attenuation(n):
     fig = sel.designed_figures(d, TUNE, 9e3)
     for key, rej in fig.adjacent_rejection_db.items():
         f_if = IF - float(key)  # high-side LO: RF offset +d lands at IF - d
-        omega = abs(f_if**2 - IF**2) / (f_if * 9e3)  # low-pass to band-pass, geometric symmetry (scipy lp2bp docs)
-        # source: Butterworth A = 10 log10(1 + Omega^(2n)), filter handbooks (Zverev; Williams & Taylor)
+        omega = abs(f_if**2 - IF**2) / (f_if * 9e3)
+        # low-pass to band-pass variable, geometric symmetry (scipy.signal.lp2bp documentation)
+        # source: Butterworth A = 10 log10(1 + Omega^(2n)), Williams & Taylor, Electronic Filter Design
+        # Handbook, 4th ed. (2006), ch. 2 (from memory)
         assert rej == pytest.approx(10 * math.log10(1 + omega ** (2 * n)), abs=1e-6)
     # -3 dB full width of the band-pass is the design bandwidth, exactly (Omega = 1 at the edges)
     assert fig.bandwidth_hz["3"] == pytest.approx(9e3, rel=1e-3)
@@ -68,7 +72,9 @@ def test_butterworth_group_delay():
                       "if_stage": [{"response": "butterworth", "order": 5, "bandwidth": "9k"}]})
     tau = sel.group_delay_s(d, TUNE, [0.0])[0]
     wc = 2 * math.pi * 4.5e3  # band-pass 9 kHz wide = low-pass equivalent with 4.5 kHz cut-off
-    # source: Butterworth group delay tau(0) = 1/sin(pi/2n)/wc, filter texts; n 5, fc 4.5 kHz: 114.5 us
+    # source: Butterworth group delay at DC, tau(0) = sum_k -Re(p_k)/|p_k|^2 over the poles e^{j(pi/2 + (2k-1)pi/2n)}
+    # = 1/sin(pi/2n)/wc (derived from the pole positions, Williams & Taylor, Electronic Filter Design Handbook,
+    # 4th ed. (2006), ch. 2 (from memory)); n 5, fc 4.5 kHz: 114.5 us
     assert tau == pytest.approx(1 / math.sin(math.pi / 10) / wc, rel=2e-3)
     assert tau * 1e6 == pytest.approx(114.5, abs=0.3)
 
@@ -77,7 +83,8 @@ def test_group_delay_of_single_tuned_preselector():
     d = design_chain({"preselector": {"kind": "tracking", "q": 50},
                       "if_stage": [{"response": "single_tuned", "q": 40}]})
     tau = sel.group_delay_s(d, TUNE, [0.0])[0]
-    # source: single-tuned circuit, tau(f0) = 2Q/w0 (envelope delay of a resonator), EE circuit texts
+    # source: single-tuned circuit, tau(f0) = 2Q/w0: d/dw of the phase atan(Q(w/w0 - w0/w)) at w0 (derived from
+    # the universal resonance curve (Terman, Radio Engineers' Handbook, 1943, sec. 3; from memory))
     assert tau == pytest.approx(2 * 50 / (2 * math.pi * TUNE) + 2 * 40 / (2 * math.pi * IF), rel=1e-6)
 
 
@@ -87,7 +94,8 @@ def test_preselector_image_rejection_worked_example():
     fig = sel.designed_figures(d, TUNE, 10e3)
     fim = TUNE + 2 * IF  # common practice: image = f + 2 IF for high-side LO
     rho = fim / TUNE - TUNE / fim
-    # source: receiver chapter of communication-systems texts, alpha = sqrt(1 + Q^2 rho^2): 42.8 dB
+    # source: alpha = sqrt(1 + Q^2 rho^2), Kennedy & Davis, Electronic Communication Systems, 4th ed. (1999),
+    # receivers chapter (from memory): 42.8 dB
     assert fig.image_rejection_db == pytest.approx(20 * math.log10(math.sqrt(1 + 100**2 * rho**2)), abs=1e-9)
     assert fig.image_rejection_db == pytest.approx(42.8, abs=0.05)
 

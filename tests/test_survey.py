@@ -18,7 +18,7 @@ def rng():
 def am_stations(t, stations, center_hz, rng, complex_envelope=True):
     """Sum of AM carriers, 30 % tone modulation (bench test signal, common practice).
 
-    Level convention (contracts.md): carrier of amplitude A reads 20·log10(A) dBFS; in I/Q the
+    Level convention (README, file formats): carrier of amplitude A reads 20·log10(A) dBFS; in I/Q the
     carrier is A·exp(j2π(f - fc)t), in real RF A·cos(2πft).
     """
     x = np.zeros(t.size, dtype=complex if complex_envelope else float)
@@ -47,9 +47,9 @@ def write_iq(path, x, fs, center_hz, datatype="ci16_le"):
 
 
 @pytest.mark.parametrize("spacing, channels", [
-    # source: ITU Radio Regulations / Geneva 1975 plan: 9 kHz MF channel spacing in Regions 1 and 3
+    # source: Geneva 1975 LF/MF broadcasting plan (GE75): 9 kHz MF channel spacing in Regions 1 and 3
     (9e3, [531e3 + 9e3 * k for k in (8, 9, 30, 52, 53, 70)]),
-    # source: ITU Rio de Janeiro 1981 plan: 10 kHz MF channel spacing in Region 2
+    # source: Rio de Janeiro 1981 Region 2 MF broadcasting plan: 10 kHz channel spacing
     (10e3, [540e3 + 10e3 * k for k in (7, 8, 33, 47, 48, 99)]),
 ])
 def test_finds_every_carrier_at_right_frequency_and_level(spacing, channels, tmp_path, rng):
@@ -125,7 +125,7 @@ def test_no_phantoms_in_a_short_excerpt(seed, tmp_path):
 
 def test_sidebands_of_off_grid_carriers_are_not_carriers(tmp_path, rng):
     # A Region 2 band (10 kHz grid) surveyed on the 9 kHz grid of Regions 1 and 3.
-    # source: ITU Radio Regulations / Geneva 1975 (9 kHz) and Rio de Janeiro 1981 (10 kHz) plans
+    # source: Geneva 1975 (9 kHz, Regions 1 and 3) and Rio de Janeiro 1981 (10 kHz, Region 2) MF plans
     # 880 and 1510 kHz lie 2 kHz from the 9 kHz channels 882 and 1512 (within a quarter spacing: found,
     # with their offset); 600, 1130 and 1140 kHz lie 3-4 kHz off, and each has a sideband line inside
     # the window of the 9 kHz channel next to it (601, 1132, 1141 kHz) that must not be listed.
@@ -136,7 +136,8 @@ def test_sidebands_of_off_grid_carriers_are_not_carriers(tmp_path, rng):
                 (1510e3, -16.0, 1e3)]
     x = complex_noise(n, -80, rng)
     for f, level_dbfs, tone_hz in stations:
-        # 50 % tone modulation: each sideband 20 log10(m/2) = -12 dBc (communication-systems texts)
+        # 50 % tone modulation: each sideband 20 log10(m/2) = -12 dBc (AM spectrum: Haykin, Communication
+        # Systems, 4th ed. (Wiley, 2001), ch. 2 (from memory))
         env = 10 ** (level_dbfs / 20) * (1 + 0.5 * np.cos(2 * np.pi * tone_hz * t))
         x = x + env * np.exp(2j * np.pi * (f - center) * t)
     r = write_iq(tmp_path / "r2.sigmf-meta", x, fs, center)

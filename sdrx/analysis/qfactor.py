@@ -112,7 +112,8 @@ def single_tuned_response(f_hz, f0_hz, q):
     Notes
     -----
     Parallel RLC (or series RLC voltage across R) normalised to its peak;
-    the magnitude is the universal resonance curve of EE circuit texts.
+    the magnitude is the universal resonance curve (Terman, Radio Engineers'
+    Handbook, McGraw-Hill 1943, sec. 3; from memory).
 
     Examples
     --------
@@ -250,8 +251,9 @@ def cascade_bandwidth(f0_hz, q, x_db=10 * math.log10(2), stages=1, kind="single"
     Notes
     -----
     At half power this gives the shrinkage ``sqrt(2^(1/n) - 1)`` for single
-    and ``(2^(1/n) - 1)^(1/4)`` for double-tuned stages (tuned-amplifier
-    chapter of communication-electronics texts).
+    and ``(2^(1/n) - 1)^(1/4)`` for double-tuned stages (synchronous
+    tuning: Terman, Electronic and Radio Engineering, 4th ed., McGraw-Hill 1955,
+    tuned amplifiers; from memory).
 
     Examples
     --------
@@ -375,7 +377,8 @@ def preselector_image_rejection_db(tune_hz, image_hz, q, stages=1):
     Notes
     -----
     ``alpha = sqrt(1 + Q²·rho²)``, ``rho = f_im/f - f/f_im`` per circuit
-    (receiver chapter of communication-systems texts).
+    (Kennedy & Davis, Electronic Communication Systems, 4th ed.,
+    McGraw-Hill 1999, receivers chapter; from memory).
 
     Examples
     --------

@@ -255,8 +255,9 @@ class MixerDesign:
     A real multiplier passes wanted and image each with 1/2. A quadrature
     (image-reject) mixer with gain ratio γ and phase error φ passes the
     wanted with K1 = (1 + γe^{-jφ})/2 and the image with K2 = (1 − γe^{-jφ})/2,
-    so IRR = |K1/K2|² = (1+γ²+2γcosφ)/(1+γ²−2γcosφ) (image-reject mixer
-    application notes), both times the 1/2 of the multiplication. Both act
+    so IRR = |K1/K2|² = (1+γ²+2γcosφ)/(1+γ²−2γcosφ) (Razavi, RF
+    Microelectronics, 2nd ed., Prentice Hall 2011, ch. 4, image-reject
+    receivers; from memory), both times the 1/2 of the multiplication. Both act
     on the upright envelopes (high-side u = conj(K1·w) + K2·v, low-side
     u = K1·w + conj(K2·v)), which is what the exact path's LO
     cos θ + jsγ·sin(θ + φ) gives.

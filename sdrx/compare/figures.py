@@ -197,7 +197,7 @@ def sinad_db(x, fs: float, tone_hz: float, *, skip_s: float = 0.25) -> float:
     Notes
     -----
     ``SINAD = 10·log10(P_total / (P_total − P_tone))`` with the mean removed
-    (common practice, receiver measurement texts). The tone is removed by a
+    (IEEE Std 1241-2010, SINAD definition). The tone is removed by a
     least-squares fit of ``a·cos(ωn) + b·sin(ωn)`` at the known frequency: an
     ideal notch of zero width that leaves noise and distortion in place.
 
