@@ -1,0 +1,53 @@
+"""Filter formulas from the handbooks, computed by the tests' own code (never by the filter-design calls sdrx makes).
+
+- ``if_freq``: the real IF frequency where the low-pass to band-pass variable Ω = (f² − f0²)/(f·B) takes a
+  value (the substitution s -> (s² + ω0²)/(s·B); scipy.signal.lp2bp documentation).
+- ``chebyshev_att_db``: A(Ω) = 10·log10(1 + ε²·T_n(Ω)²), ε² = 10^(Ap/10) − 1 (Williams & Taylor, Electronic
+  Filter Design Handbook, 4th ed. (McGraw-Hill, 2006), ch. 2; from memory), T_n(x) = cos(n·acos x) for
+  |x| <= 1 and cosh(n·acosh|x|)·sign(x)^n beyond (Abramowitz & Stegun, Handbook of Mathematical Functions
+  (1964), 22.3.15; from memory).
+- ``elliptic_stopband_edge``: Ωs from the degree equation n = K(k)·K'(k1) / (K'(k)·K(k1)), k = 1/Ωs,
+  k1 = sqrt((10^(Ap/10) − 1)/(10^(As/10) − 1)), K the complete elliptic integral of the first kind (Daniels,
+  Approximation Methods for Electronic Filter Design (McGraw-Hill, 1974), elliptic-function filters; from
+  memory), solved with scipy.special.ellipk (which takes the parameter m = k²).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import optimize, special
+
+__all__ = ["if_freq", "chebyshev_t", "chebyshev_att_db", "elliptic_stopband_edge"]
+
+
+def if_freq(omega, bw_hz: float, f0_hz: float):
+    """Real IF frequency (Hz) where Ω = (f² − f0²)/(f·B) takes ``omega`` (scalar or array)."""
+    om = np.asarray(omega, dtype=float)
+    f = (om * bw_hz + np.sqrt((om * bw_hz) ** 2 + 4 * f0_hz * f0_hz)) / 2
+    return float(f) if f.ndim == 0 else f
+
+
+def chebyshev_t(n: int, x):
+    """Chebyshev polynomial of the first kind T_n(x), any real x."""
+    x = np.asarray(x, dtype=float)
+    inside = np.cos(n * np.arccos(np.clip(x, -1.0, 1.0)))
+    outside = np.sign(x) ** n * np.cosh(n * np.arccosh(np.maximum(np.abs(x), 1.0)))
+    return np.where(np.abs(x) <= 1.0, inside, outside)
+
+
+def chebyshev_att_db(n: int, ripple_db: float, omega):
+    """Chebyshev type I attenuation at Ω, dB (0 at the ripple peaks)."""
+    eps2 = 10 ** (ripple_db / 10) - 1
+    a = 10 * np.log10(1 + eps2 * chebyshev_t(n, omega) ** 2)
+    return float(a) if a.ndim == 0 else a
+
+
+def elliptic_stopband_edge(n: int, ripple_db: float, stop_db: float) -> float:
+    """Stopband edge Ωs (ripple band edge 1) of an elliptic low-pass of order n, Ap and As."""
+    k1 = math.sqrt((10 ** (ripple_db / 10) - 1) / (10 ** (stop_db / 10) - 1))
+    ratio = n * special.ellipk(k1 * k1) / special.ellipk(1 - k1 * k1)
+    k = optimize.brentq(lambda x: special.ellipk(x * x) / special.ellipk(1 - x * x) - ratio, 1e-9, 1 - 1e-15,
+                        xtol=1e-15)
+    return 1.0 / k
