@@ -10,6 +10,12 @@
   k1 = sqrt((10^(Ap/10) − 1)/(10^(As/10) − 1)), K the complete elliptic integral of the first kind (Daniels,
   Approximation Methods for Electronic Filter Design (McGraw-Hill, 1974), elliptic-function filters; from
   memory), solved with scipy.special.ellipk (which takes the parameter m = k²).
+- ``single_tuned_power``: 1/(1 + Q²(f/f0 − f0/f)²), the universal resonance curve (Terman, Radio Engineers'
+  Handbook (McGraw-Hill, 1943), sec. 3; from memory); ``double_tuned_power``: 4/(4 + x⁴), x = Q(f/f0 − f0/f),
+  two identical circuits at critical coupling kQ = 1 (same book, coupled circuits; from memory);
+  ``butterworth_bandpass_power``: 1/(1 + Ω^(2n)) (Williams & Taylor, ch. 2; from memory).
+- ``preset_response_db``: the ``medium`` and ``wide`` presets' antenna-to-IF response from those formulas and
+  the presets' published parameters (README: presets), high-side LO, so an RF offset +d lands at IF − d.
 """
 
 from __future__ import annotations
@@ -19,7 +25,10 @@ import math
 import numpy as np
 from scipy import optimize, special
 
-__all__ = ["if_freq", "chebyshev_t", "chebyshev_att_db", "elliptic_stopband_edge"]
+__all__ = ["if_freq", "chebyshev_t", "chebyshev_att_db", "elliptic_stopband_edge", "single_tuned_power",
+           "double_tuned_power", "butterworth_bandpass_power", "preset_response_db"]
+
+IF_HZ = 455e3
 
 
 def if_freq(omega, bw_hz: float, f0_hz: float):
@@ -51,3 +60,41 @@ def elliptic_stopband_edge(n: int, ripple_db: float, stop_db: float) -> float:
     k = optimize.brentq(lambda x: special.ellipk(x * x) / special.ellipk(1 - x * x) - ratio, 1e-9, 1 - 1e-15,
                         xtol=1e-15)
     return 1.0 / k
+
+
+def single_tuned_power(f_hz, f0_hz: float, q: float):
+    """|H|² of one tuned circuit of loaded Q, 1 at f0."""
+    f = np.asarray(f_hz, dtype=float)
+    return 1 / (1 + (q * (f / f0_hz - f0_hz / f)) ** 2)
+
+
+def double_tuned_power(f_hz, f0_hz: float, q: float):
+    """|H|² of two identical tuned circuits at critical coupling, 1 on the flat top."""
+    f = np.asarray(f_hz, dtype=float)
+    x = q * (f / f0_hz - f0_hz / f)
+    return 4 / (4 + x ** 4)
+
+
+def butterworth_bandpass_power(f_hz, f0_hz: float, bw_hz: float, n: int):
+    """|H|² of a Butterworth low-pass of order n moved to a band-pass of −3 dB width bw about f0."""
+    f = np.asarray(f_hz, dtype=float)
+    omega = (f * f - f0_hz * f0_hz) / (f * bw_hz)
+    return 1 / (1 + omega ** (2 * n))
+
+
+def preset_response_db(preset: str, tune_hz: float, f_rf_hz, preselector: bool = True):
+    """Designed response of the ``medium`` or ``wide`` preset at RF f re the tune, dB, from the formulas."""
+    f = np.asarray(f_rf_hz, dtype=float)
+    f_if = IF_HZ - (f - tune_hz)
+    if preset == "medium":   # tracking Q 40; Butterworth order 2, 9 kHz; single-tuned Q 60
+        p = butterworth_bandpass_power(f_if, IF_HZ, 9e3, 2) * single_tuned_power(f_if, IF_HZ, 60.0)
+        q_pre = 40.0
+    elif preset == "wide":   # tracking Q 30; Butterworth order 3, 16 kHz; double-tuned 20 kHz wide
+        p = butterworth_bandpass_power(f_if, IF_HZ, 16e3, 3) * double_tuned_power(f_if, IF_HZ,
+                                                                                  math.sqrt(2) * IF_HZ / 20e3)
+        q_pre = 30.0
+    else:
+        raise ValueError(f"no formula for preset {preset!r}")
+    if preselector:
+        p = p * single_tuned_power(f, tune_hz, q_pre)
+    return 10 * np.log10(p)
