@@ -50,7 +50,7 @@ def test_depth_and_carrier_level_match_the_scenario_iq(level, depth, fm, channel
     freq = 1e6 + channel * 10e3
     x = _capture(_iq([_tone_station(freq, level, depth, fm)], seconds=0.02))
     env = _baseband(x, 400e3, freq - 1e6)
-    assert _depth(env) == pytest.approx(depth, abs=2e-4)
+    assert _depth(env) == pytest.approx(depth, abs=1e-6)   # measured deviation 1e-16 over the examples
     # carrier = mean of the envelope over whole tone periods (0.02 s holds 8..80 periods)
     assert 20 * np.log10(abs(env.mean())) == pytest.approx(level, abs=0.01)
 
@@ -63,7 +63,7 @@ def test_depth_and_level_of_a_real_capture(depth):
     env = _real_envelope(x, 400e3, 100e3)
     assert _depth(env) == pytest.approx(depth, abs=2e-3)
     # level convention (README, file formats): 20 log10 of the cosine's peak amplitude
-    assert 20 * np.log10(abs(env[: 400 * 40].mean())) == pytest.approx(-12.0, abs=0.02)
+    assert 20 * np.log10(abs(env[: 400 * 40].mean())) == pytest.approx(-12.0, abs=1e-6)   # measured 4e-15 dB
 
 
 @pytest.mark.parametrize("kind", ["iq", "real"])
@@ -92,7 +92,7 @@ def test_single_tone_sidebands_and_total_power(kind, depth):
     # memory))
     pc = 10 ** (-20 / 10) * (1.0 if kind == "iq" else 0.5)
     pt = np.mean(np.abs(x) ** 2)
-    assert pt == pytest.approx(pc * (1 + depth ** 2 / 2), rel=1e-3)
+    assert pt == pytest.approx(pc * (1 + depth ** 2 / 2), rel=3e-4)   # measured deviation 3.3e-5 (relative)
     # nothing else: no interpolation images or harmonics above -80 dBc
     others = np.abs(spec).copy()
     for ff in (f_c, f_c + fm, f_c - fm, -f_c, -f_c - fm, -f_c + fm):
@@ -105,7 +105,7 @@ def test_carrier_frequency_error_moves_the_carrier():
     env = _baseband(_capture(d), 400e3, 50e3)
     phase = np.unwrap(np.angle(env))
     slope = np.polyfit(np.arange(env.size) / 400e3, phase, 1)[0] / (2 * np.pi)
-    assert slope == pytest.approx(37.5, abs=1e-6)
+    assert slope == pytest.approx(37.5, abs=1e-9)   # measured deviation 2.7e-12
 
 
 def test_iq_station_is_the_baseband_of_the_rf_signal():
@@ -182,8 +182,9 @@ def test_two_path_carrier_and_sidebands_follow_the_two_ray_response():
     h = lambda ff: abs(1 + rho * np.exp(-2j * np.pi * ff * tau))  # noqa: E731
     a = 10 ** (-20 / 20)
     assert line(50e3) == pytest.approx(a * h(f_rf), rel=1e-4)
-    assert line(50e3 + fm) == pytest.approx(a * 0.25 * h(f_rf + fm), rel=1e-3)
-    assert line(50e3 - fm) == pytest.approx(a * 0.25 * h(f_rf - fm), rel=1e-3)
+    # measured deviation 2.5e-5 (relative) on the sidebands; tolerance 2.5e-4
+    assert line(50e3 + fm) == pytest.approx(a * 0.25 * h(f_rf + fm), rel=2.5e-4)
+    assert line(50e3 - fm) == pytest.approx(a * 0.25 * h(f_rf - fm), rel=2.5e-4)
 
 
 def test_rayleigh_station_mean_power_and_fades():
