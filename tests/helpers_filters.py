@@ -14,8 +14,10 @@
   Handbook (McGraw-Hill, 1943), sec. 3; from memory); ``double_tuned_power``: 4/(4 + x⁴), x = Q(f/f0 − f0/f),
   two identical circuits at critical coupling kQ = 1 (same book, coupled circuits; from memory);
   ``butterworth_bandpass_power``: 1/(1 + Ω^(2n)) (Williams & Taylor, ch. 2; from memory).
-- ``preset_response_db``: the ``medium`` and ``wide`` presets' antenna-to-IF response from those formulas and
-  the presets' published parameters (README: presets), high-side LO, so an RF offset +d lands at IF − d.
+- ``preset_response_db`` / ``preset_envelope_response``: the ``medium`` and ``wide`` presets' antenna-to-IF
+  response from those formulas (complex: the Butterworth low-pass poles exp(jπ(2k + n − 1)/(2n)), the tuned
+  circuits 1/(1 + jx) and 2/((1 + jx)² + 1)) and the presets' published parameters (README: presets),
+  high-side LO, so an RF offset +d lands at IF − d.
 """
 
 from __future__ import annotations
@@ -82,19 +84,48 @@ def butterworth_bandpass_power(f_hz, f0_hz: float, bw_hz: float, n: int):
     return 1 / (1 + omega ** (2 * n))
 
 
-def preset_response_db(preset: str, tune_hz: float, f_rf_hz, preselector: bool = True):
-    """Designed response of the ``medium`` or ``wide`` preset at RF f re the tune, dB, from the formulas."""
+def _butterworth_lowpass(n: int, omega):
+    """Complex Butterworth low-pass at s = jΩ: 1/Π(s − p_k), p_k = exp(jπ(2k + n − 1)/(2n)), k = 1..n."""
+    s = 1j * np.asarray(omega, dtype=float)
+    h = np.ones(s.shape, complex)
+    for k in range(1, n + 1):
+        h = h / (s - np.exp(1j * math.pi * (2 * k + n - 1) / (2 * n)))
+    return h
+
+
+def _tuned(f, f0, q, double=False):
+    """Complex single-tuned 1/(1 + jx), or critically coupled pair 2/((1 + jx)² + 1), x = Q(f/f0 − f0/f)."""
+    x = q * (f / f0 - f0 / f)
+    return 2 / ((1 + 1j * x) ** 2 + 1) if double else 1 / (1 + 1j * x)
+
+
+def preset_envelope_response(preset: str, tune_hz: float, f_rf_hz, preselector: bool = True):
+    """The ``medium`` or ``wide`` preset's complex response seen by the upright envelope, 1 at the tune.
+
+    The preselector acts at RF; the high-side mixer moves RF tune + d to IF − d with the spectrum inverted,
+    so the IF stages act on the envelope as conj(H_IF(IF − d)) (|u| = |conj u|). Butterworth stages are
+    the low-pass poles at Ω = (f² − f0²)/(f·B) (the band-pass substitution, exact for the complex response).
+    """
     f = np.asarray(f_rf_hz, dtype=float)
     f_if = IF_HZ - (f - tune_hz)
     if preset == "medium":   # tracking Q 40; Butterworth order 2, 9 kHz; single-tuned Q 60
-        p = butterworth_bandpass_power(f_if, IF_HZ, 9e3, 2) * single_tuned_power(f_if, IF_HZ, 60.0)
+        h = _butterworth_lowpass(2, (f_if ** 2 - IF_HZ ** 2) / (f_if * 9e3)) * _tuned(f_if, IF_HZ, 60.0)
         q_pre = 40.0
     elif preset == "wide":   # tracking Q 30; Butterworth order 3, 16 kHz; double-tuned 20 kHz wide
-        p = butterworth_bandpass_power(f_if, IF_HZ, 16e3, 3) * double_tuned_power(f_if, IF_HZ,
-                                                                                  math.sqrt(2) * IF_HZ / 20e3)
+        h = (_butterworth_lowpass(3, (f_if ** 2 - IF_HZ ** 2) / (f_if * 16e3))
+             * _tuned(f_if, IF_HZ, math.sqrt(2) * IF_HZ / 20e3, double=True))
         q_pre = 30.0
     else:
         raise ValueError(f"no formula for preset {preset!r}")
+    h = np.conj(h)
     if preselector:
-        p = p * single_tuned_power(f, tune_hz, q_pre)
-    return 10 * np.log10(p)
+        h = h * _tuned(f, tune_hz, q_pre)
+    return h
+
+
+def preset_response_db(preset: str, tune_hz: float, f_rf_hz, preselector: bool = True):
+    """Designed response of the ``medium`` or ``wide`` preset at RF f re the tune, dB, from the formulas."""
+    h = preset_envelope_response(preset, tune_hz, f_rf_hz, preselector)
+    h0 = preset_envelope_response(preset, tune_hz, tune_hz, preselector)
+    r = 20 * np.log10(np.abs(h / h0))
+    return float(r) if np.ndim(r) == 0 else r

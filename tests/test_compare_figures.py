@@ -4,9 +4,8 @@ import json
 
 import numpy as np
 import pytest
-from scipy import signal
 
-from sdrx.compare.figures import audio_bandwidth_hz, designed_figures, sinad_db
+from sdrx.compare.figures import designed_figures, sinad_db
 from sdrx.compare.truth import single_tone_hz
 
 from helpers_filters import preset_response_db
@@ -40,19 +39,6 @@ def test_sinad_counts_distortion(rng):
     # the same definition with distortion alone: SINAD = 10 log10((1 + d^2) / d^2), d the harmonic ratio
     # measured deviation 1.5e-12 dB; tolerance 1e-9 dB
     assert sinad_db(x, FS, 1000.0) == pytest.approx(10 * np.log10((1 + 1e-4) / 1e-4), abs=1e-9)
-
-
-@pytest.mark.parametrize("order,fc", [(8, 3000.0), (6, 2000.0)])
-def test_audio_bandwidth_of_butterworth_noise(rng, order, fc):
-    x = signal.sosfilt(signal.butter(order, fc, fs=FS, output="sos"), rng.standard_normal(int(8 * FS)))
-    # source: Butterworth attenuation 10 log10(1 + (f/fc)^(2n)) (Williams & Taylor, Electronic Filter Design
-    # Handbook, 4th ed. (2006), ch. 2 (from memory)): 20 dB at fc * 99^(1/(2n))
-    expect = fc * 99 ** (1 / (2 * order))
-    assert audio_bandwidth_hz(x, FS) == pytest.approx(expect, rel=0.03)
-
-
-def test_audio_bandwidth_none_when_never_down(rng):
-    assert audio_bandwidth_hz(rng.standard_normal(int(2 * FS)), FS) is None
 
 
 def test_designed_figures_against_the_handbook_formulas():

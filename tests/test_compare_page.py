@@ -136,6 +136,23 @@ def test_designed_figures_follow_the_presets(tmp_path, rng):
     assert narrow["image_hz"] == pytest.approx(1.13e6 + 2 * 455e3)
 
 
+def test_audio_bandwidth_is_the_chains_not_the_programmes(tmp_path, rng):
+    # the page's audio bandwidth follows the chain (test tones through it, sdrx.analysis.audio_response:
+    # checked against the filter formulas in test_audio_response.py), the same figure refs records
+    from sdrx.analysis.audio_response import AUDIO_BANDWIDTH_DEFINITION, audio_bandwidth_hz
+    from sdrx.chain import design_chain
+
+    out, result = make(tmp_path, rng)
+    assert result["audio_bandwidth_definition"] == AUDIO_BANDWIDTH_DEFINITION
+    got = [s["audio_bandwidth_hz"] for s in result["specs"]]
+    assert got == [audio_bandwidth_hz(design_chain(s["chain"]), 1.13e6) for s in result["specs"]]
+    wide, medium, narrow = got
+    assert narrow < 2500 < medium < 4500 < wide          # 2.15, 3.01 and 6.28 kHz
+    page = (out / "index.html").read_text()
+    assert "audio bandwidth (−3 dB re 1 kHz, test tones through the chain)" in page
+    assert f"{medium / 1e3:.2f}" in page
+
+
 def test_blind_key_reproducible_and_hidden(tmp_path, rng):
     out1, _ = make(tmp_path, rng, blind=12, seed=77, out_name="a")
     out2, _ = make(tmp_path, np.random.default_rng(5150), blind=12, seed=77, out_name="b")

@@ -83,7 +83,14 @@ def test_record_then_verify_passes(bench):
     assert len(e["capture"]["sha256"]) == 64 and len(e["capture"]["meta_sha256"]) == 64
     info = sf.info(str(ref_wav(store, "bench-1010")))
     assert info.subtype == "FLOAT" and info.frames == e["audio"]["samples"] > 0
-    assert math.isfinite(e["metrics"]["level_dbfs"]) and e["metrics"]["bandwidth_hz"] > 0
+    assert math.isfinite(e["metrics"]["level_dbfs"]) and e["metrics"]["occupied_bandwidth_hz"] > 0
+    # the chain's audio bandwidth, by the one definition compare uses too (test tones through the chain)
+    from sdrx.analysis.audio_response import AUDIO_BANDWIDTH_DEFINITION, audio_bandwidth_hz
+    from sdrx.chain import design_chain
+
+    assert e["metrics"]["audio_bandwidth_definition"] == AUDIO_BANDWIDTH_DEFINITION
+    assert e["metrics"]["audio_bandwidth_hz"] == audio_bandwidth_hz(design_chain(e["chain"]["spec"]), TUNE)
+    assert 2000 < e["metrics"]["audio_bandwidth_hz"] < 4500
     rep = verify_cases(cases, store, failures_dir=folder / "fail")
     assert rep.ok and rep.exit_code == 0
     assert [r.status for r in rep.results] == ["pass", "pass"]

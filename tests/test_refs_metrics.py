@@ -115,22 +115,22 @@ def test_spectrum_accumulator_matches_scipy_welch(rng):
     np.testing.assert_allclose(p, pw * FS / acc.n, rtol=1e-9)
 
 
-def test_audio_figures_level_bandwidth(tmp_path):
+def test_audio_figures_level_and_occupied_bandwidth(tmp_path):
     fig = audio_figures(wav(tmp_path / "t.wav", tone(1000, FS, amp=0.5)))
     # source: AES17 dBFS (full-scale sine = 0 dBFS): 20 log10(0.5) for a half-scale sine
     assert fig.level_dbfs == pytest.approx(20 * math.log10(0.5), abs=2e-6)   # measured 1.6e-7 dB (float32)
     binw = FS / SpectrumAccumulator(FS).n
-    assert abs(fig.bandwidth_hz - 1000.0) <= 2 * binw
+    assert abs(fig.occupied_bandwidth_hz - 1000.0) <= 2 * binw
     levels = dict(zip([b[0] for b in octave_bands(FS)], fig.band_levels_dbfs))
     assert levels[1000.0] == pytest.approx(20 * math.log10(0.5), abs=2e-6)   # measured 1.6e-7 dB
     assert levels[125.0] < -80
 
 
-def test_audio_figures_white_noise_bandwidth(tmp_path, rng):
+def test_audio_figures_white_noise_occupied_bandwidth(tmp_path, rng):
     fig = audio_figures(wav(tmp_path / "w.wav", 0.1 * rng.standard_normal(4 * FS)))
     # flat spectrum: 99 % of the power above 20 Hz lies below 20 + 0.99 (fs/2 - 20)  (formula)
     # measured deviation 2.6e-4 (relative; the Welch estimate of 4 s of noise); tolerance 3e-3
-    assert fig.bandwidth_hz == pytest.approx(20 + 0.99 * (FS / 2 - 20), rel=3e-3)
+    assert fig.occupied_bandwidth_hz == pytest.approx(20 + 0.99 * (FS / 2 - 20), rel=3e-3)
 
 
 def test_sinad_tone_plus_noise(tmp_path, rng):
