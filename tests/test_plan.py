@@ -22,7 +22,7 @@ def test_region2_grid_lo_and_image_ranges():
     assert p.image_range_hz == pytest.approx((540e3 + 910e3, 1700e3 + 910e3))
     ratio = (1700e3 + 455e3) / (540e3 + 455e3)
     assert p.lo_tuning_ratio == pytest.approx(ratio, rel=1e-12)
-    # f = 1/(2 pi sqrt(LC)): capacitance ratio is the square of the tuning ratio (LC circuit theory)
+    # f = 1/(2 pi sqrt(LC)): capacitance ratio is the square of the tuning ratio (physical identity)
     assert p.lo_capacitance_ratio == pytest.approx(ratio**2, rel=1e-12)
 
 

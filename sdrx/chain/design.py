@@ -65,7 +65,8 @@ def double_tuned_zpk(f0_hz: float, q: float):
 
     With D(s) = s² + (ω0/Q)s + ω0² and x = Q(f/f0 − f0/f),
     H(s) = 2(sω0/Q)² / (D² + (sω0/Q)²) gives |H| = 2/sqrt(4 + x⁴): flat top,
-    −3 dB full width √2·f0/Q (coupled-circuit theory).
+    −3 dB full width √2·f0/Q (coupled circuits: Terman, Radio Engineers'
+    Handbook, McGraw-Hill 1943, sec. 3; from memory).
 
     Examples
     --------
