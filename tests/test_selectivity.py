@@ -20,12 +20,11 @@ def _formula_edges(preset, level_db):
     """Offsets where the preset's formula response (tests/helpers_filters.py) is level_db down, by brentq."""
     from scipy import optimize
 
-    g = lambda off: float(preset_response_db(preset, TUNE, TUNE + off)) + level_db  # noqa: E731
+    g = lambda off: preset_response_db(preset, TUNE, TUNE + off) + level_db  # noqa: E731
     grid = np.arange(0.0, 200e3, 50.0)
     out = []
     for sign in (-1.0, 1.0):
-        y = np.array([g(sign * x) for x in grid])
-        i = int(np.argmax(y <= 0))
+        i = int(np.argmax(g(sign * grid) <= 0))
         out.append(optimize.brentq(g, *sorted((sign * grid[i - 1], sign * grid[i])), xtol=1e-7, rtol=1e-14))
     return tuple(out)
 

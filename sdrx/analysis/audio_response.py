@@ -9,7 +9,7 @@ programme itself occupies is a different figure with a different name (the refs 
 ``occupied_bandwidth_hz``).
 
 The measurement is one run of the actual :class:`sdrx.run.Receiver` on a short I/Q test capture made in
-code: a carrier at the tune, amplitude modulated by a comb of tones 1/24 octave apart from 50 Hz to 40 % of
+code (centred on the tune, at least 240 kS/s and 2.5 times the audio rate): a carrier at the tune, amplitude modulated by a comb of tones 1/24 octave apart from 50 Hz to 40 % of
 the audio rate, each on the frequency grid of the analysis window so that a rectangular-window FFT reads
 every tone's amplitude without leakage; Schroeder phases keep the summed modulation's peak low, so the
 envelope never nears zero and the detector works as on a single tone.
@@ -43,8 +43,8 @@ REFERENCE_HZ = 1000.0
 AUDIO_BANDWIDTH_DEFINITION = ("highest modulating frequency at which the chain's audio output is 3 dB below "
                               "its output at 1 kHz (AM test tones through the chain, AGC held)")
 
-_WINDOW_S = 0.2        # analysis window: tones on a 5 Hz grid
-_SETTLE_S = 0.25       # filters, detector (PLL) and audio high-pass settle first
+_WINDOW_S = 0.1        # analysis window: tones on a 10 Hz grid
+_SETTLE_S = 0.15       # filters, detector (PLL) and audio high-pass settle first
 _STEPS_PER_OCTAVE = 24
 _LOWEST_HZ = 50.0
 
@@ -82,7 +82,7 @@ def comb_frequencies(audio_rate_hz: float, window_s: float = _WINDOW_S) -> np.nd
     --------
     >>> f = comb_frequencies(48000.0)
     >>> float(f[0]), 1000.0 in f, bool(f[-1] <= 19200.0), len(f)
-    (50.0, True, True, 190)
+    (50.0, True, True, 171)
     """
     step = 1.0 / window_s
     top = 0.4 * audio_rate_hz
@@ -134,7 +134,7 @@ def measure_audio_response(design, tune_hz: float, *, path: str = "fast", spacin
     tune_hz : float
     path : {"fast", "exact"}
     spacing_hz : float
-        Channel spacing (sets the test capture's rate, as for the measured selectivity).
+        Channel spacing (only to validate the tuning as the reports do).
     amplitude : float
         Carrier amplitude, full scale 1 (0.1 = −20 dBFS).
     depth_rms : float
@@ -160,11 +160,11 @@ def measure_audio_response(design, tune_hz: float, *, path: str = "fast", spacin
     (True, 'fast')
     """
     from ..run import Receiver
-    from .selectivity import tone_capture, validate_tuning
+    from .selectivity import _ToneCapture, validate_tuning
 
     tune_hz, spacing_hz = validate_tuning(design, tune_hz, spacing_hz)
-    info = tone_capture(design, tune_hz, spacing_hz)
     afs = float(design.audio.rate_hz)
+    info = _ToneCapture(max(240e3, 100e3 * math.ceil(2.5 * afs / 100e3)), tune_hz)
     freqs = comb_frequencies(afs)
     k = np.arange(freqs.size)
     phases = -math.pi * k * k / freqs.size
