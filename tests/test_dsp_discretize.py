@@ -64,7 +64,7 @@ def _grid(st):
 
     Tuned circuits and low-order prototypes never reach −60 dB near the IF (a single-tuned stage of
     Q 60 is only about −30 dB 100 kHz away, a 2nd-order Butterworth 9 kHz wide about −56 dB), so for
-    them the check covers f_IF ± 100 kHz, as the issue allows.
+    them the check covers f_IF ± 100 kHz.
     """
     f = np.linspace(IF_HZ - 100e3, IF_HZ + 100e3, 8001)
     _, h = signal.freqs_zpk(st.z, st.p, st.k, worN=2 * np.pi * f)
