@@ -89,9 +89,8 @@ def _post_detection_noise_bandwidth_hz(fm_hz, preselector_q=40.0):
 # using envelope detection; from memory) with W the post-detection noise bandwidth computed above (2992 Hz),
 # and SINAD = 10·log10(1 + S/N). C/N is set in a 9 kHz bandwidth (the DSB emission width of 4.5 kHz audio,
 # ITU-R BS.639): N0 = C/(10^(CN/10)·9 kHz). Measured deviation from the prediction: 0.04 dB with this seed
-# (up to 0.12 dB with others), the
-# statistical spread of a noise power read over 0.9 s of 3 kHz-wide noise (1σ = 1/sqrt(W·T) = 1.9 %,
-# 0.08 dB); tolerance 0.4 dB (5σ). A 1 % error in any filter's bandwidth moves W by about 1 % (0.04 dB) and
+# (up to 0.12 dB with others), the statistical spread of a noise power read over 0.9 s of 3 kHz-wide noise
+# (1σ = 1/sqrt(W·T) = 1.9 %, 0.08 dB); tolerance 0.4 dB (5σ). A 1 % error in any filter's bandwidth moves W by about 1 % (0.04 dB) and
 # is not what this catches; a detector that is not linear in the noise, a wrong noise scaling or a lost
 # sideband (−3 dB) is.
 @pytest.mark.parametrize("path, cn_db", [("fast", 30.0), ("fast", 45.0), ("fast", 60.0), ("exact", 45.0)])
