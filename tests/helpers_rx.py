@@ -1,6 +1,6 @@
 """Shared helpers for the receiver-chain tests: test signals, running a Receiver, audio measurements.
 
-Signals follow the capture contract (contracts.md): an RF signal in an I/Q
+Signals follow sdrx's capture conventions (README, file formats): an RF signal in an I/Q
 capture is Re{x e^{j2π f_c t}}, so a carrier of amplitude A at RF frequency f
 is A·exp(2jπ(f − center)n/fs) and reads 20·log10(A) dBFS.
 

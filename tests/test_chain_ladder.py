@@ -56,7 +56,8 @@ def test_chebyshev_ladder_transmits_the_chebyshev_response(n, rp):
 def test_end_resonator_q_of_the_medium_preset():
     st = design_chain("medium").stages[0]   # Butterworth, order 2, 9 kHz at 455 kHz
     q_in, q_out = st.end_resonator_q
-    # Q_e = g0·g1·f0/BW with g1 = 2·sin(π/4) (maximally flat ladder, filter handbooks)
+    # Q_e = g0·g1·f0/BW with g1 = 2·sin(π/4) (maximally flat ladder: Matthaei, Young & Jones, Microwave Filters,
+    # Impedance-Matching Networks, and Coupling Structures (1964), ch. 4; from memory)
     assert q_in == pytest.approx(2 * np.sin(np.pi / 4) * 455e3 / 9e3, rel=1e-12)
     assert q_out == pytest.approx(q_in, rel=1e-12)
     assert design_chain("medium").stages[1].end_resonator_q is None   # a tuned circuit: its own Q

@@ -90,7 +90,7 @@ def test_sigmf_output_with_truth(tmp_path, scenario, capsys):
     x = np.concatenate(list(reader.blocks()))
     n = np.arange(x.size)
     carrier = np.mean(x * np.exp(2j * np.pi * 50e3 * n / 400e3))
-    assert 20 * np.log10(abs(carrier)) == pytest.approx(-20.0, abs=0.05)
+    assert 20 * np.log10(abs(carrier)) == pytest.approx(-20.0, abs=0.003)   # measured deviation 2.8e-4 dB
 
 
 def test_wav_output_is_stereo_iq(tmp_path, scenario, capsys):

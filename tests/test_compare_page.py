@@ -83,15 +83,16 @@ def visible_text(page):
 
 def test_written_wavs_are_loudness_matched_and_unclipped(tmp_path, rng):
     out, result = make(tmp_path, rng)
-    meter = pyloudnorm.Meter(FS)
+    meter = pyloudnorm.Meter(FS, filter_class="DeMan")
     levels = []
     for s in result["specs"]:
         x, fs = sf.read(out / s["wav"], dtype="float64")
         assert fs == FS
         levels.append(meter.integrated_loudness(x))
         assert np.max(np.abs(x)) <= 10 ** (-1 / 20)  # sample peak at or below -1 dBFS: nothing clipped
-    # source: ITU-R BS.1770 via pyloudnorm, measured independently on the files
-    np.testing.assert_allclose(levels, result["loudness"]["target_lufs"], atol=0.1)
+    # consistency check: the BS.1770 meter sdrx uses (pyloudnorm, the filters of BS.1770-4's tables) run
+    # again on the written 16-bit files (measured deviation 1.4e-6 LU; tolerance 1e-5 LU)
+    np.testing.assert_allclose(levels, result["loudness"]["target_lufs"], rtol=0, atol=1e-5)
     # the gains differ by what the inputs' loudness differed by (0.8 vs 0.05 level: about 24 dB)
     gains = [s["gain_db"] for s in result["specs"]]
     befores = [s["loudness_lufs_before"] for s in result["specs"]]
@@ -133,6 +134,23 @@ def test_designed_figures_follow_the_presets(tmp_path, rng):
     assert narrow["bandwidth_6db_hz"] < wide["bandwidth_6db_hz"]
     assert narrow["adjacent_rejection_db"]["worst"] > wide["adjacent_rejection_db"]["worst"]
     assert narrow["image_hz"] == pytest.approx(1.13e6 + 2 * 455e3)
+
+
+def test_audio_bandwidth_is_the_chains_not_the_programmes(tmp_path, rng):
+    # the page's audio bandwidth follows the chain (test tones through it, sdrx.analysis.audio_response:
+    # checked against the filter formulas in test_audio_response.py), the same figure refs records
+    from sdrx.analysis.audio_response import AUDIO_BANDWIDTH_DEFINITION, audio_bandwidth_hz
+    from sdrx.chain import design_chain
+
+    out, result = make(tmp_path, rng)
+    assert result["audio_bandwidth_definition"] == AUDIO_BANDWIDTH_DEFINITION
+    got = [s["audio_bandwidth_hz"] for s in result["specs"]]
+    assert got == [audio_bandwidth_hz(design_chain(s["chain"]), 1.13e6) for s in result["specs"]]
+    wide, medium, narrow = got
+    assert narrow < 2500 < medium < 4500 < wide          # 2.15, 3.01 and 6.28 kHz
+    page = (out / "index.html").read_text()
+    assert "audio bandwidth (−3 dB re 1 kHz, test tones through the chain)" in page
+    assert f"{medium / 1e3:.2f}" in page
 
 
 def test_blind_key_reproducible_and_hidden(tmp_path, rng):

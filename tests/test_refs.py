@@ -83,7 +83,14 @@ def test_record_then_verify_passes(bench):
     assert len(e["capture"]["sha256"]) == 64 and len(e["capture"]["meta_sha256"]) == 64
     info = sf.info(str(ref_wav(store, "bench-1010")))
     assert info.subtype == "FLOAT" and info.frames == e["audio"]["samples"] > 0
-    assert math.isfinite(e["metrics"]["level_dbfs"]) and e["metrics"]["bandwidth_hz"] > 0
+    assert math.isfinite(e["metrics"]["level_dbfs"]) and e["metrics"]["occupied_bandwidth_hz"] > 0
+    # the chain's audio bandwidth, by the one definition compare uses too (test tones through the chain)
+    from sdrx.analysis.audio_response import AUDIO_BANDWIDTH_DEFINITION, audio_bandwidth_hz
+    from sdrx.chain import design_chain
+
+    assert e["metrics"]["audio_bandwidth_definition"] == AUDIO_BANDWIDTH_DEFINITION
+    assert e["metrics"]["audio_bandwidth_hz"] == audio_bandwidth_hz(design_chain(e["chain"]["spec"]), TUNE)
+    assert 2000 < e["metrics"]["audio_bandwidth_hz"] < 4500
     rep = verify_cases(cases, store, failures_dir=folder / "fail")
     assert rep.ok and rep.exit_code == 0
     assert [r.status for r in rep.results] == ["pass", "pass"]
@@ -109,7 +116,8 @@ def test_bandwidth_change_fails_snr_and_names_case(bench):
     # the difference file is new - reference, and its energy gives the reported SNR back (definition)
     ref = sf.read(str(ref_wav(store, "bench-1010")), dtype="float64")[0]
     d = sf.read(str(diff), dtype="float64")[0]
-    assert 10 * np.log10(np.sum(ref ** 2) / np.sum(d ** 2)) == pytest.approx(r.figures["snr_db"], abs=0.01)
+    # measured deviation 1e-10 dB; tolerance 1e-8 dB
+    assert 10 * np.log10(np.sum(ref ** 2) / np.sum(d ** 2)) == pytest.approx(r.figures["snr_db"], abs=1e-8)
 
 
 def test_changed_capture_is_reported_as_changed(bench):

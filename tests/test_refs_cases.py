@@ -24,7 +24,7 @@ def write(folder, text):
     return p
 
 
-ISSUE_EXAMPLE = """
+README_EXAMPLE = """
 [[case]]
 name = "harbour-1130"
 capture = "captures/harbour.sigmf-meta"    # relative to this file
@@ -37,8 +37,8 @@ tolerance = { snr_db = 60, level_db = 0.1, spectrum_db = 0.5 }   # or tolerance 
 """
 
 
-def test_issue_example_parses(folder):
-    cf = load_cases(write(folder, ISSUE_EXAMPLE))
+def test_readme_example_parses(folder):
+    cf = load_cases(write(folder, README_EXAMPLE))
     (c,) = cf.cases
     assert c.name == "harbour-1130"
     assert c.capture == folder / "captures" / "harbour.sigmf-meta"

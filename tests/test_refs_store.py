@@ -22,7 +22,7 @@ def entry():
         "chain": {"name": "medium", "spec": {"if_frequency": 455e3}},
         "capture": {"sha256": "0" * 64, "meta_sha256": None, "info": {}},
         "versions": {"sdrx": "0.1.0", "numpy": "2", "scipy": "1"},
-        "metrics": {"level_dbfs": -10.0, "bandwidth_hz": 4000.0, "sinad_db": None},
+        "metrics": {"level_dbfs": -10.0, "occupied_bandwidth_hz": 4000.0, "sinad_db": None},
     }
 
 

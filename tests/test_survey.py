@@ -18,7 +18,7 @@ def rng():
 def am_stations(t, stations, center_hz, rng, complex_envelope=True):
     """Sum of AM carriers, 30 % tone modulation (bench test signal, common practice).
 
-    Level convention (contracts.md): carrier of amplitude A reads 20·log10(A) dBFS; in I/Q the
+    Level convention (README, file formats): carrier of amplitude A reads 20·log10(A) dBFS; in I/Q the
     carrier is A·exp(j2π(f - fc)t), in real RF A·cos(2πft).
     """
     x = np.zeros(t.size, dtype=complex if complex_envelope else float)
@@ -47,9 +47,9 @@ def write_iq(path, x, fs, center_hz, datatype="ci16_le"):
 
 
 @pytest.mark.parametrize("spacing, channels", [
-    # source: ITU Radio Regulations / Geneva 1975 plan: 9 kHz MF channel spacing in Regions 1 and 3
+    # source: Geneva 1975 LF/MF broadcasting plan (GE75): 9 kHz MF channel spacing in Regions 1 and 3
     (9e3, [531e3 + 9e3 * k for k in (8, 9, 30, 52, 53, 70)]),
-    # source: ITU Rio de Janeiro 1981 plan: 10 kHz MF channel spacing in Region 2
+    # source: Rio de Janeiro 1981 Region 2 MF broadcasting plan: 10 kHz channel spacing
     (10e3, [540e3 + 10e3 * k for k in (7, 8, 33, 47, 48, 99)]),
 ])
 def test_finds_every_carrier_at_right_frequency_and_level(spacing, channels, tmp_path, rng):
@@ -64,8 +64,9 @@ def test_finds_every_carrier_at_right_frequency_and_level(spacing, channels, tmp
     assert sorted(c.freq_hz for c in found) == sorted(channels)
     by_f = {c.freq_hz: c for c in found}
     for f, lv, e in zip(channels, levels, errs):
-        assert by_f[f].level_dbfs == pytest.approx(lv, abs=1.0)  # issue requirement: +-1 dB
-        assert by_f[f].offset_hz == pytest.approx(e, abs=r.info.fs / 16384)
+        # measured deviation 0.002 dB and 0.12 Hz (the bins are 73 Hz wide); tolerances 0.02 dB and 1.5 Hz
+        assert by_f[f].level_dbfs == pytest.approx(lv, abs=0.02)
+        assert by_f[f].offset_hz == pytest.approx(e, abs=1.5)
     assert [c.level_dbfs for c in found] == sorted((c.level_dbfs for c in found), reverse=True)
 
 
@@ -83,7 +84,7 @@ def test_real_capture_levels(tmp_path, rng):
     got = [(c.freq_hz, c.level_dbfs) for c in res.carriers]
     assert [g[0] for g in got] == [610e3, 1130e3, 1650e3]
     for (f, lv, _), (_, g) in zip(stations, got):
-        assert g == pytest.approx(lv, abs=1.0)
+        assert g == pytest.approx(lv, abs=0.02)   # measured deviation 0.0016 dB
 
 
 @pytest.mark.parametrize("frac", [0.0, 0.25, 0.5])
@@ -96,7 +97,7 @@ def test_level_free_of_scalloping(frac, tmp_path):
     r = write_iq(tmp_path / "l.sigmf-meta", x, fs, center, datatype="cf32_le")
     (c,) = survey_carriers(r)
     assert c.freq_hz == 1030e3
-    assert c.level_dbfs == pytest.approx(20 * math.log10(0.1), abs=0.05)
+    assert c.level_dbfs == pytest.approx(20 * math.log10(0.1), abs=5e-3)   # measured deviation 4.8e-4 dB
 
 
 @pytest.mark.parametrize("seed", range(6))
@@ -108,7 +109,8 @@ def test_no_phantom_carriers_in_noise(seed, spacing, tmp_path):
     res = survey(r, spacing_hz=spacing)
     assert res.carriers == ()
     # the floor: noise power sigma^2 spread over nfft bins (in the line-level units of the survey)
-    assert res.noise_floor_dbfs == pytest.approx(-30 - 10 * math.log10(res.nfft), abs=0.5)
+    # the median of a noise spectrum averaged over the excerpt's segments: measured within 0.017 dB
+    assert res.noise_floor_dbfs == pytest.approx(-30 - 10 * math.log10(res.nfft), abs=0.2)
 
 
 @pytest.mark.parametrize("seed", range(4))
@@ -125,7 +127,7 @@ def test_no_phantoms_in_a_short_excerpt(seed, tmp_path):
 
 def test_sidebands_of_off_grid_carriers_are_not_carriers(tmp_path, rng):
     # A Region 2 band (10 kHz grid) surveyed on the 9 kHz grid of Regions 1 and 3.
-    # source: ITU Radio Regulations / Geneva 1975 (9 kHz) and Rio de Janeiro 1981 (10 kHz) plans
+    # source: Geneva 1975 (9 kHz, Regions 1 and 3) and Rio de Janeiro 1981 (10 kHz, Region 2) MF plans
     # 880 and 1510 kHz lie 2 kHz from the 9 kHz channels 882 and 1512 (within a quarter spacing: found,
     # with their offset); 600, 1130 and 1140 kHz lie 3-4 kHz off, and each has a sideband line inside
     # the window of the 9 kHz channel next to it (601, 1132, 1141 kHz) that must not be listed.
@@ -136,15 +138,17 @@ def test_sidebands_of_off_grid_carriers_are_not_carriers(tmp_path, rng):
                 (1510e3, -16.0, 1e3)]
     x = complex_noise(n, -80, rng)
     for f, level_dbfs, tone_hz in stations:
-        # 50 % tone modulation: each sideband 20 log10(m/2) = -12 dBc (communication-systems texts)
+        # 50 % tone modulation: each sideband 20 log10(m/2) = -12 dBc (AM spectrum: Haykin, Communication
+        # Systems, 4th ed. (Wiley, 2001), ch. 2 (from memory))
         env = 10 ** (level_dbfs / 20) * (1 + 0.5 * np.cos(2 * np.pi * tone_hz * t))
         x = x + env * np.exp(2j * np.pi * (f - center) * t)
     r = write_iq(tmp_path / "r2.sigmf-meta", x, fs, center)
     res = survey(r, spacing_hz="9k")
     assert [c.freq_hz for c in res.carriers] == [1512e3, 882e3]
     for c, true_hz, level in zip(res.carriers, (1510e3, 880e3), (-16.0, -26.0)):
-        assert c.freq_hz + c.offset_hz == pytest.approx(true_hz, abs=res.rbw_hz)
-        assert c.level_dbfs == pytest.approx(level, abs=1.0)
+        # measured deviation 0.05 Hz (bins of 73 Hz) and 0.0016 dB
+        assert c.freq_hz + c.offset_hz == pytest.approx(true_hz, abs=1.0)
+        assert c.level_dbfs == pytest.approx(level, abs=0.02)
 
 
 def test_threshold_separates_weak_from_clear(tmp_path, rng):
@@ -157,7 +161,8 @@ def test_threshold_separates_weak_from_clear(tmp_path, rng):
     r = write_iq(tmp_path / "t.sigmf-meta", x, fs, center, datatype="cf32_le")
     res = survey(r)
     assert [c.freq_hz for c in res.carriers] == [1050e3]
-    assert res.carriers[0].level_dbfs == pytest.approx(floor_db + 25, abs=1.0)
+    # a line 25 dB above the noise in its bin reads within ±0.5 dB of its level (measured 0.042 dB)
+    assert res.carriers[0].level_dbfs == pytest.approx(floor_db + 25, abs=0.5)
 
 
 def test_excerpt_and_progress(tmp_path, rng):

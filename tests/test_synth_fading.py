@@ -25,7 +25,7 @@ def test_rayleigh_power_is_exponential_with_unit_mean(rng):
     g = _gains(5.0, None, rng)  # 200 s at 5 Hz: about 1000 independent fades
     p = np.abs(g) ** 2
     # source: the envelope of a zero-mean complex Gaussian is Rayleigh, its power exponential:
-    # P(|g|^2 <= x) = 1 - exp(-x / mean)  (mobile-radio propagation texts)
+    # P(|g|^2 <= x) = 1 - exp(-x / mean)  (Rappaport, Wireless Communications, 2nd ed. (2002), ch. 5; from memory)
     assert p.mean() == pytest.approx(1.0, rel=0.08)
     for x in (0.1, 0.5, 1.0, 2.0):
         assert np.mean(p <= x) == pytest.approx(1 - np.exp(-x), abs=0.04)

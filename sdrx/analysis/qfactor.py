@@ -6,9 +6,11 @@ is ``rho = f/f0 - f0/f``; a single-tuned circuit of loaded Q then has
 
     |H(f)| / H0 = 1 / sqrt(1 + (Q·rho)²)                     (universal resonance curve)
 
+(Terman, Radio Engineers' Handbook, McGraw-Hill 1943, sec. 3; from memory)
+
 and a pair of identical circuits at critical coupling (k·Q = 1)
 
-    |H(f)| / H0 = 2 / sqrt(4 + (Q·rho)⁴)                     (coupled-circuit theory)
+    |H(f)| / H0 = 2 / sqrt(4 + (Q·rho)⁴)                     (coupled circuits, same book)
 
 Because ``rho`` is odd under f -> f0²/f, every x-dB *width* follows exactly:
 ``f2 - f1 = f0·X/Q`` where ``X`` is the value of ``Q·rho`` at x dB.
@@ -112,7 +114,8 @@ def single_tuned_response(f_hz, f0_hz, q):
     Notes
     -----
     Parallel RLC (or series RLC voltage across R) normalised to its peak;
-    the magnitude is the universal resonance curve of EE circuit texts.
+    the magnitude is the universal resonance curve (Terman, Radio Engineers'
+    Handbook, McGraw-Hill 1943, sec. 3; from memory).
 
     Examples
     --------
@@ -147,7 +150,8 @@ def double_tuned_attenuation_db(f_hz, f0_hz, q, stages=1):
     Notes
     -----
     Two identical circuits of loaded Q, coupling k = 1/Q:
-    ``|H|/H0 = 2/sqrt(4 + X⁴)`` with ``X = Q·rho`` (coupled-circuit theory),
+    ``|H|/H0 = 2/sqrt(4 + X⁴)`` with ``X = Q·rho`` (coupled circuits: Terman,
+    Radio Engineers' Handbook, McGraw-Hill 1943, sec. 3; from memory),
     so ``A = stages · 10·log10(1 + X⁴/4)``.
 
     Examples
@@ -218,7 +222,8 @@ def double_tuned_bandwidth(f0_hz, q, x_db=10 * math.log10(2)):
     Notes
     -----
     ``BW = sqrt(2)·(f0/Q)·(10^(x/10) - 1)^(1/4)``; at half power
-    ``sqrt(2)·f0/Q`` (coupled-circuit theory).
+    ``sqrt(2)·f0/Q`` (coupled circuits: Terman, Radio Engineers' Handbook,
+    McGraw-Hill 1943, sec. 3; from memory).
 
     Examples
     --------
@@ -250,8 +255,9 @@ def cascade_bandwidth(f0_hz, q, x_db=10 * math.log10(2), stages=1, kind="single"
     Notes
     -----
     At half power this gives the shrinkage ``sqrt(2^(1/n) - 1)`` for single
-    and ``(2^(1/n) - 1)^(1/4)`` for double-tuned stages (tuned-amplifier
-    chapter of communication-electronics texts).
+    and ``(2^(1/n) - 1)^(1/4)`` for double-tuned stages (synchronous
+    tuning: Terman, Electronic and Radio Engineering, 4th ed., McGraw-Hill 1955,
+    tuned amplifiers; from memory).
 
     Examples
     --------
@@ -375,7 +381,8 @@ def preselector_image_rejection_db(tune_hz, image_hz, q, stages=1):
     Notes
     -----
     ``alpha = sqrt(1 + Q²·rho²)``, ``rho = f_im/f - f/f_im`` per circuit
-    (receiver chapter of communication-systems texts).
+    (Kennedy & Davis, Electronic Communication Systems, 4th ed.,
+    McGraw-Hill 1999, receivers chapter; from memory).
 
     Examples
     --------

@@ -331,7 +331,8 @@ def q_summary(design, tune_hz, spacing_hz, figures):
 
     Notes
     -----
-    Universal resonance curve, EE circuit texts: ``x = 10·log10(1 + Q²rho²)``.
+    Universal resonance curve (Terman, Radio Engineers' Handbook, McGraw-Hill
+    1943, sec. 3; from memory): ``x = 10·log10(1 + Q²rho²)``.
     """
     stages = []
     pre = design.preselector

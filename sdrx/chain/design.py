@@ -65,7 +65,8 @@ def double_tuned_zpk(f0_hz: float, q: float):
 
     With D(s) = s² + (ω0/Q)s + ω0² and x = Q(f/f0 − f0/f),
     H(s) = 2(sω0/Q)² / (D² + (sω0/Q)²) gives |H| = 2/sqrt(4 + x⁴): flat top,
-    −3 dB full width √2·f0/Q (coupled-circuit theory).
+    −3 dB full width √2·f0/Q (coupled circuits: Terman, Radio Engineers'
+    Handbook, McGraw-Hill 1943, sec. 3; from memory).
 
     Examples
     --------
@@ -255,8 +256,9 @@ class MixerDesign:
     A real multiplier passes wanted and image each with 1/2. A quadrature
     (image-reject) mixer with gain ratio γ and phase error φ passes the
     wanted with K1 = (1 + γe^{-jφ})/2 and the image with K2 = (1 − γe^{-jφ})/2,
-    so IRR = |K1/K2|² = (1+γ²+2γcosφ)/(1+γ²−2γcosφ) (image-reject mixer
-    application notes), both times the 1/2 of the multiplication. Both act
+    so IRR = |K1/K2|² = (1+γ²+2γcosφ)/(1+γ²−2γcosφ) (Razavi, RF
+    Microelectronics, 2nd ed., Prentice Hall 2011, ch. 4, image-reject
+    receivers; from memory), both times the 1/2 of the multiplication. Both act
     on the upright envelopes (high-side u = conj(K1·w) + K2·v, low-side
     u = K1·w + conj(K2·v)), which is what the exact path's LO
     cos θ + jsγ·sin(θ + φ) gives.

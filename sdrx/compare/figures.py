@@ -1,20 +1,19 @@
 """Figures shown side by side on the comparison page.
 
 Designed figures come from the chain design (its RF-to-IF response, the same
-objects the receiver runs); measured figures come from each output's audio.
+objects the receiver runs); SINAD is measured on each output's audio. The
+chain's audio bandwidth is :func:`sdrx.analysis.audio_response.audio_bandwidth_hz`.
 """
 
 from __future__ import annotations
 
 import numpy as np
-from scipy import signal
 
 from ..units import db10
 
 __all__ = [
     "selectivity_curve",
     "designed_figures",
-    "audio_bandwidth_hz",
     "sinad_db",
 ]
 
@@ -113,69 +112,6 @@ def designed_figures(design, tune_hz: float, spacing_hz: float) -> dict:
     }
 
 
-def _long_term_spectrum(x, fs):
-    nper = int(2 ** np.ceil(np.log2(fs / 25.0)))
-    nper = max(16, min(nper, x.size))
-    f, p = signal.welch(x - np.mean(x), fs=fs, window="hann", nperseg=nper, noverlap=nper // 2,
-                        detrend=False, scaling="density")
-    kernel = np.ones(5) / 5.0
-    return f, np.convolve(p, kernel, mode="same")
-
-
-def audio_bandwidth_hz(x, fs: float, *, drop_db: float = 20.0, ref_band_hz=(300.0, 1000.0)):
-    """Audio bandwidth of an output: where its long-term spectrum falls ``drop_db`` below mid-band.
-
-    Parameters
-    ----------
-    x : array_like
-        Mono audio.
-    fs : float
-        Sample rate, Hz.
-    drop_db : float
-        How far below the reference the edge is (default 20 dB).
-    ref_band_hz : (float, float)
-        Band whose mean power density is the reference (default 300 Hz–1 kHz).
-
-    Returns
-    -------
-    float or None
-        The first frequency above the reference band where the spectrum is
-        ``drop_db`` below the reference (linear interpolation between bins);
-        None if it never falls that far below fs/2.
-
-    Notes
-    -----
-    Long-term spectrum: Welch average, Hann window, segments of 2^ceil(log2(fs/25))
-    samples (bins ≤ 25 Hz), 50 % overlap, smoothed over 5 bins. The figure
-    describes the output's content, so it is meaningful on broadband programme
-    (speech-like, music-like, noise); on a single tone it measures the noise.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> from scipy import signal
-    >>> noise = np.random.default_rng(0).standard_normal(96000)
-    >>> sos = signal.butter(8, 3000, fs=48000, output="sos")
-    >>> 3000 < audio_bandwidth_hz(signal.sosfilt(sos, noise), 48000.0) < 4000
-    True
-    """
-    a = np.asarray(x, dtype=np.float64)
-    f, p = _long_term_spectrum(a, fs)
-    band = (f >= ref_band_hz[0]) & (f <= ref_band_hz[1])
-    ref_db = float(db10(np.mean(p[band])))
-    level = ref_db - drop_db
-    pdb = db10(np.maximum(p, 1e-300))
-    above = np.nonzero(f > ref_band_hz[1])[0]
-    below = above[pdb[above] <= level]
-    if below.size == 0:
-        return None
-    j = below[0]
-    i = j - 1
-    d0, d1 = pdb[i], pdb[j]
-    frac = 0.0 if d0 == d1 else (d0 - level) / (d0 - d1)
-    return float(f[i] + frac * (f[j] - f[i]))
-
-
 def sinad_db(x, fs: float, tone_hz: float, *, skip_s: float = 0.25) -> float:
     """SINAD of a single-tone output, dB: total power over power with the tone removed.
 
@@ -197,7 +133,7 @@ def sinad_db(x, fs: float, tone_hz: float, *, skip_s: float = 0.25) -> float:
     Notes
     -----
     ``SINAD = 10·log10(P_total / (P_total − P_tone))`` with the mean removed
-    (common practice, receiver measurement texts). The tone is removed by a
+    (IEEE Std 1241-2010, SINAD definition). The tone is removed by a
     least-squares fit of ``a·cos(ωn) + b·sin(ωn)`` at the known frequency: an
     ideal notch of zero width that leaves noise and distortion in place.
 

@@ -269,7 +269,8 @@ def _figure_rows(specs: list, spacing_hz: float | None) -> str:
          if s.get("adjacent_rejection_db") else "&mdash;"),
         ("image rejection", lambda s: (_num(s.get("image_rejection_db"), ".1f", " dB")
                                        + (f" at {_e(format_frequency(s['image_hz']))}" if s.get("image_hz") else ""))),
-        ("audio bandwidth (−20 dB re 300 Hz–1 kHz)", lambda s: _khz(s.get("audio_bandwidth_hz"))),
+        ("audio bandwidth (−3 dB re 1 kHz, test tones through the chain)",
+         lambda s: _khz(s.get("audio_bandwidth_hz"))),
         ("SINAD (truth sidecar tone)", lambda s: _num(s.get("sinad_db"), ".1f", " dB")),
         ("carrier over the channel noise", lambda s: _num(_check(s, "carrier_snr_db"), ".1f", " dB")),
         ("image at the detector, re carrier", lambda s: _num(_check(s, "image_leak_db"), "+.1f", " dB")),

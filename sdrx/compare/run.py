@@ -25,7 +25,8 @@ from ..fileio import atomic_path, same_file
 from ..units import format_frequency, parse_frequency, parse_seconds
 from . import blind as blind_mod
 from .align import align
-from .figures import audio_bandwidth_hz, designed_figures, selectivity_curve, sinad_db
+from ..analysis.audio_response import AUDIO_BANDWIDTH_DEFINITION, audio_bandwidth_hz
+from .figures import designed_figures, selectivity_curve, sinad_db
 from .loudness import integrated_loudness, match_loudness
 
 __all__ = [
@@ -556,8 +557,8 @@ def write_comparison(out_dir, choices, designs, raw, rates, *, plan, tune_hz: fl
             "designed_delay_ms": (None if designed_delays_s is None
                                   else (designed_delays_s[i] - designed_delays_s[0]) * 1e3),
             **figs,
-            # on a single test tone the long-term spectrum shows the tone, not the chain: not reported
-            "audio_bandwidth_hz": None if tone_hz else audio_bandwidth_hz(cut[i], audio_fs),
+            # the chain's, from test tones through it (the programme's content would not follow the chain)
+            "audio_bandwidth_hz": audio_bandwidth_hz(d, tune, path=header["path"], spacing_hz=spacing),
             "sinad_db": _finite_or_none(sinad_db(cut[i], audio_fs, tone_hz)) if tone_hz else None,
             # compare takes the receiver's float output and re-levels it, so its clipping count
             # (of the 16-bit scale, mostly in the start-up left out) does not apply
@@ -577,6 +578,7 @@ def write_comparison(out_dir, choices, designs, raw, rates, *, plan, tune_hz: fl
         **({"corrections": header["corrections"]} if "corrections" in header else {}),
         "audio_rate_hz": audio_fs,
         "spacing_hz": spacing,
+        "audio_bandwidth_definition": AUDIO_BANDWIDTH_DEFINITION,
         "alignment": {
             "reference": labels[0],
             "method": ("integer lag at the peak of the cross-correlation with the first output, searched "

@@ -5,7 +5,8 @@
   peaks the capacitor discharges as exp(−t/RC). When the envelope falls
   faster than the RC can follow, the output follows the exponential instead:
   diagonal clipping, absent when RC ≤ sqrt(1 − m²)/(2π·fm·m)
-  (diode-detector analysis in communication-systems texts).
+  (diode detector with RC load: Haykin, Communication Systems, 4th ed. (Wiley, 2001), ch. 2, envelope
+  detection; from memory).
 - ``synchronous``: a carrier-locked (PLL) product detector, Re{u·e^{−jθ}}.
 """
 
@@ -23,7 +24,7 @@ def diagonal_clipping_limit_s(m: float, fm_hz: float) -> float:
 
     Examples
     --------
-    >>> round(diagonal_clipping_limit_s(0.3, 1000.0) * 1e6, 0)   # CHECKS.md worked value: 506 µs
+    >>> round(diagonal_clipping_limit_s(0.3, 1000.0) * 1e6, 0)   # sqrt(1 − 0.09)/(2π·1000·0.3) = 506 µs
     506.0
     """
     if m <= 0:

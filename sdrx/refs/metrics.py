@@ -17,9 +17,10 @@ with no alignment: a change of delay is itself a change of output):
   most 8 Hz wide, half overlap), floored at −120 dBFS.
 
 Output figures recorded in the manifest: RMS level in dBFS (a full-scale sine
-is 0 dBFS, so ``20·log10(√2·rms)``), the audio bandwidth (the frequency under
-which 99 % of the power above 20 Hz lies), and the SINAD of a single-tone
-program when its frequency is known.
+is 0 dBFS, so ``20·log10(√2·rms)``), the occupied bandwidth (the frequency under
+which 99 % of the output's power above 20 Hz lies: what the programme occupies,
+not the chain's audio bandwidth, which :mod:`sdrx.analysis.audio_response`
+measures), and the SINAD of a single-tone program when its frequency is known.
 """
 
 from __future__ import annotations
@@ -194,7 +195,7 @@ class SpectrumAccumulator:
             out.append(max(level, BAND_FLOOR_DBFS))
         return out
 
-    def bandwidth_hz(self) -> float:
+    def occupied_bandwidth_hz(self) -> float:
         """Frequency under which 99 % of the power above 20 Hz lies (0 for silence)."""
         freqs, p = self.result()
         sel = freqs >= _BANDWIDTH_MIN_HZ
@@ -220,7 +221,7 @@ class AudioFigures:
     channels: int
     samples: int
     level_dbfs: float
-    bandwidth_hz: float
+    occupied_bandwidth_hz: float
     band_levels_dbfs: tuple
 
     def to_json(self) -> dict:
@@ -230,7 +231,7 @@ class AudioFigures:
             "channels": self.channels,
             "samples": self.samples,
             "level_dbfs": _finite_or_none(self.level_dbfs),
-            "bandwidth_hz": self.bandwidth_hz,
+            "occupied_bandwidth_hz": self.occupied_bandwidth_hz,
             "octave_centres_hz": [b[0] for b in octave_bands(self.fs)],
             "band_levels_dbfs": [_finite_or_none(v) for v in self.band_levels_dbfs],
         }
@@ -241,7 +242,7 @@ def _finite_or_none(v):
 
 
 def audio_figures(path) -> AudioFigures:
-    """RMS level, audio bandwidth and octave band levels of a WAV file.
+    """RMS level, occupied bandwidth and octave band levels of a WAV file.
 
     Parameters
     ----------
@@ -259,8 +260,8 @@ def audio_figures(path) -> AudioFigures:
     Notes
     -----
     Level: ``20·log10(√2·rms)`` dBFS, full-scale sine = 0 dBFS (AES17 convention).
-    Bandwidth: 99 % of the power above 20 Hz (the occupied-bandwidth idea of
-    ITU-R SM.328 applied to a baseband signal).
+    Occupied bandwidth: 99 % of the power above 20 Hz (the occupied-bandwidth
+    idea of ITU-R SM.328 applied to a baseband signal).
 
     Examples
     --------
@@ -283,7 +284,7 @@ def audio_figures(path) -> AudioFigures:
         channels = f.channels
     return AudioFigures(fs=fs, channels=channels, samples=n,
                         level_dbfs=_level_dbfs(sum_sq / max(channels, 1), n),
-                        bandwidth_hz=acc.bandwidth_hz(),
+                        occupied_bandwidth_hz=acc.occupied_bandwidth_hz(),
                         band_levels_dbfs=tuple(acc.band_levels_dbfs()))
 
 

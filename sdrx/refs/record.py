@@ -12,6 +12,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable, Optional
 
+from ..analysis.audio_response import AUDIO_BANDWIDTH_DEFINITION, audio_bandwidth_hz
+from ..chain import design_chain
 from ..errors import OutputError
 from .cases import load_cases, select_cases
 from .metrics import audio_figures, tone_sinad_db
@@ -28,7 +30,8 @@ class RecordResult:
     name: str
     audio_path: Path
     level_dbfs: Optional[float]
-    bandwidth_hz: float
+    audio_bandwidth_hz: Optional[float]
+    occupied_bandwidth_hz: float
     sinad_db: Optional[float]
     replaced: bool
     time_s: float
@@ -38,7 +41,9 @@ class RecordResult:
         lvl = "n/a" if self.level_dbfs is None else f"{self.level_dbfs:.2f} dBFS"
         sinad = "" if self.sinad_db is None else f", SINAD {self.sinad_db:.1f} dB"
         verb = "updated" if self.replaced else "recorded"
-        return f"{verb} {self.name}: level {lvl}, bandwidth {self.bandwidth_hz:.0f} Hz{sinad} -> {self.audio_path}"
+        audio = "n/a" if self.audio_bandwidth_hz is None else f"{self.audio_bandwidth_hz:.0f} Hz"
+        return (f"{verb} {self.name}: level {lvl}, audio bandwidth {audio}, occupied bandwidth "
+                f"{self.occupied_bandwidth_hz:.0f} Hz{sinad} -> {self.audio_path}")
 
 
 def record_cases(cases_file, store, *, names=None, update: bool = False,
@@ -78,7 +83,9 @@ def record_cases(cases_file, store, *, names=None, update: bool = False,
     SHA-256 of the capture, the versions of sdrx/numpy/scipy and the output
     figures (:func:`sdrx.refs.metrics.audio_figures`; SINAD by
     :func:`sdrx.refs.metrics.tone_sinad_db` when the capture's truth sidecar
-    gives the tuned station a single-tone program).
+    gives the tuned station a single-tone program) and the chain's audio
+    bandwidth (:func:`sdrx.analysis.audio_response.audio_bandwidth_hz` on the
+    case's chain, tuning and path: test tones through the chain).
     """
     cf = load_cases(cases_file)
     cases = select_cases(cf, names)
@@ -104,6 +111,9 @@ def record_cases(cases_file, store, *, names=None, update: bool = False,
             metrics = fig.to_json()
             metrics["sinad_db"] = sinad
             metrics["sinad_tone_hz"] = tone
+            metrics["audio_bandwidth_hz"] = audio_bandwidth_hz(design_chain(prep.chain_spec), case.tune_hz,
+                                                               path=case.path)
+            metrics["audio_bandwidth_definition"] = AUDIO_BANDWIDTH_DEFINITION
             entry = {
                 "case": case.to_json(),
                 "chain": {"name": prep.chain_name, "spec": prep.chain_spec},
@@ -114,7 +124,9 @@ def record_cases(cases_file, store, *, names=None, update: bool = False,
             }
             dest = st.write_case(case.name, entry, wav)
         res = RecordResult(name=case.name, audio_path=dest, level_dbfs=metrics["level_dbfs"],
-                           bandwidth_hz=fig.bandwidth_hz, sinad_db=clean_json(sinad), replaced=replaced,
+                           audio_bandwidth_hz=metrics["audio_bandwidth_hz"],
+                           occupied_bandwidth_hz=fig.occupied_bandwidth_hz, sinad_db=clean_json(sinad),
+                           replaced=replaced,
                            time_s=time.perf_counter() - t0)
         results.append(res)
         if on_result is not None:

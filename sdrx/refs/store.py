@@ -19,8 +19,9 @@ The manifest is JSON (keys sorted, two-space indent, no NaN)::
   capture's data file and (SigMF) metadata file, and its metadata.
 - ``versions``: ``{"sdrx", "numpy", "scipy", "python"}`` at recording time.
 - ``audio``: ``{"file", "sha256", "fs", "channels", "samples"}`` of the reference WAV.
-- ``metrics``: level (dBFS), audio bandwidth (Hz), octave band levels, SINAD
-  (null without a single-tone truth sidecar).
+- ``metrics``: level (dBFS), the output's occupied bandwidth (Hz, 99 % of its
+  power), the chain's audio bandwidth (Hz, :mod:`sdrx.analysis.audio_response`),
+  octave band levels, SINAD (null without a single-tone truth sidecar).
 
 Writes are atomic per case: the new WAV is written under a temporary name and
 renamed to its content-addressed name (so it never replaces the WAV the
@@ -67,7 +68,7 @@ REQUIRED_FIELDS = {
     "capture": ("sha256", "meta_sha256", "info"),
     "versions": ("sdrx", "numpy", "scipy"),
     "audio": ("file", "sha256", "fs", "channels", "samples", "bytes"),
-    "metrics": ("level_dbfs", "bandwidth_hz", "sinad_db"),
+    "metrics": ("level_dbfs", "sinad_db"),
 }
 
 

@@ -143,8 +143,9 @@ class GaussianFading:
     (D = max(1, floor(fs / (64·rate)))) through a 4th-order Butterworth
     low-pass at ``rate``, scaled by 1/sqrt(Σh²) so E|s|² = 1, started 40/rate
     seconds before t = 0. Rician: g = sqrt(K/(K+1)) + sqrt(1/(K+1))·s, so
-    E|g|² = 1 and the steady-to-scattered power ratio is K (Rician fading,
-    mobile-radio propagation texts); Rayleigh: g = s, |g| Rayleigh distributed,
+    E|g|² = 1 and the steady-to-scattered power ratio is K (Rician fading:
+    Rappaport, Wireless Communications, 2nd ed., Prentice Hall 2002, ch. 5;
+    from memory); Rayleigh: g = s, |g| Rayleigh distributed,
     |g|² exponential with mean 1. Between grid points, g is linearly
     interpolated: g[n] = s[k]·(1 − u) + s[k+1]·u, k = n // D, u = (n mod D)/D.
     Gains must be asked for in order (contiguous ranges).

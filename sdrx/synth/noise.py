@@ -172,7 +172,8 @@ class ImpulseNoise:
     -----
     The time axis is cut into fixed chunks of :data:`NOISE_CHUNK` samples; each
     chunk holds Poisson(rate·chunk/fs) impulses at uniform positions, drawn
-    chunk by chunk in order (a Poisson process; probability texts).
+    chunk by chunk in order (a Poisson process: Papoulis & Pillai, Probability, Random
+    Variables and Stochastic Processes, 4th ed., McGraw-Hill 2002; from memory).
     """
 
     def __init__(self, spec: ImpulseSpec, fs: float, kind: str, rng: np.random.Generator):

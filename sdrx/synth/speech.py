@@ -18,7 +18,8 @@ from .source import ProgramSource, broadcast_sos
 
 __all__ = ["SpeechSource", "VOWEL_FORMANTS_HZ"]
 
-# First three formants of five vowels, adult speaker, Hz (# from memory: classic vowel-formant tables)
+# First three formants of five vowels, adult speaker, Hz (Peterson & Barney, J. Acoust. Soc. Am. 24, 1952,
+# average male formants; from memory)
 VOWEL_FORMANTS_HZ = (
     (730.0, 1090.0, 2440.0),  # a
     (530.0, 1840.0, 2480.0),  # e

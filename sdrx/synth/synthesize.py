@@ -9,7 +9,8 @@ Each station is rendered as its complex envelope times a carrier oscillator:
 with A = 10^(level_dbfs/20), m the modulation depth, p the program
 (in [-1, 1]) made at the program rate and interpolated to fs, g the fading
 gains, and the bracket only for the two-path model. This is
-s(t) = A (1 + m p(t)) cos(2π f t + φ) (AM; communication-systems texts).
+s(t) = A (1 + m p(t)) cos(2π f t + φ) (AM: Haykin, Communication Systems, 4th ed.,
+Wiley 2001, ch. 2; from memory).
 Every stage keeps explicit state and computes each sample from its absolute
 index, so the samples do not depend on the block size.
 """
@@ -82,8 +83,9 @@ def design_interpolator(fs: float, L: int, bandwidth_hz: float) -> InterpolatorD
 
     Notes
     -----
-    Taps N ≈ (A − 7.95)/(14.36·Δf/fs) + 1 (Kaiser's formula, filter design
-    texts), Δf = fa − 2·bandwidth, cut-off fa/2; symmetric (odd length 2KL + 1,
+    Taps N ≈ (A − 7.95)/(14.36·Δf/fs) + 1 (Kaiser's formula: Oppenheim & Schafer,
+    Discrete-Time Signal Processing, 3rd ed., Pearson 2010, sec. 7.5.3; from
+    memory), Δf = fa − 2·bandwidth, cut-off fa/2; symmetric (odd length 2KL + 1,
     centred), so y[qL] ≈ x[q]. Each phase is normalised to a DC gain of exactly
     1, so a constant (the carrier) has no images.
 

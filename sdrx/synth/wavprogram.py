@@ -39,8 +39,8 @@ def sinc_kernel(d: np.ndarray, cutoff: float, half_width: int) -> np.ndarray:
 
     Notes
     -----
-    h(d) = 2c·sinc(2c·d)·I0(β·sqrt(1 − (d/W)²)) / I0(β) (Kaiser window; filter
-    design texts).
+    h(d) = 2c·sinc(2c·d)·I0(β·sqrt(1 − (d/W)²)) / I0(β) (Kaiser window: Oppenheim &
+    Schafer, Discrete-Time Signal Processing, 3rd ed., Pearson 2010, sec. 7.5.3; from memory).
 
     Examples
     --------
