@@ -14,7 +14,7 @@ import math
 
 import numpy as np
 
-__all__ = ["spectrogram_png", "level_svg"]
+__all__ = ["spectrogram_png", "level_svg", "capture_spectrogram_png"]
 
 _DPI = 100
 
@@ -76,6 +76,22 @@ def spectrogram_png(freqs_hz, times_s, db, stations, *, title: str = "", column_
         buf = io.BytesIO()
         fig.savefig(buf, format="png", dpi=_DPI, metadata={"Software": None})
     return buf.getvalue()
+
+
+def capture_spectrogram_png(reader, *, spacing_hz: float, start_s=0.0, duration_s=None, stations=(),
+                            progress=None) -> bytes:
+    """The spectrogram of a capture excerpt (one pass over it) as PNG bytes, ``stations`` marked.
+
+    The same picture as the band overview's for that capture (``sdrx info --spectrogram``).
+    """
+    from .spectrogram import plan_spectrogram, spectrogram
+
+    first, count = reader.sample_range(start_s, duration_s)
+    plan = plan_spectrogram(reader.info, first, count, spacing_hz)
+    db = spectrogram(reader, plan, progress=progress)
+    name = getattr(reader.info.path, "name", str(reader.info.path))
+    return spectrogram_png(plan.freqs_hz, plan.times_s, db, list(stations),
+                           title=f"{name}: spectrogram, stations marked", column_s=plan.column / plan.fs)
 
 
 def _reduce(x, lo, hi, mean, max_points):
