@@ -51,12 +51,12 @@ def _check(workers, scheduler) -> None:
 
 
 @contextlib.contextmanager
-def _client(workers, scheduler):
+def _client(workers, scheduler, connect_timeout_s):
     from dask.distributed import Client, LocalCluster
 
     if scheduler is not None:
         try:
-            client = Client(scheduler, timeout="10s")
+            client = Client(scheduler, timeout=f"{connect_timeout_s}s")
         except (OSError, TimeoutError, ValueError) as exc:
             raise ParameterError(f"--scheduler {scheduler}: cannot reach a Dask scheduler there ({exc})") from None
         try:
@@ -77,7 +77,8 @@ def _client(workers, scheduler):
 
 
 def run_jobs(fn: Callable, jobs: Sequence, *, workers: Optional[int] = None, scheduler: Optional[str] = None,
-             weights: Optional[Sequence[int]] = None, progress=None, on_result=None) -> list:
+             weights: Optional[Sequence[int]] = None, progress=None, on_result=None,
+             connect_timeout_s: float = 10.0) -> list:
     """Run ``fn(job)`` for every job; return the results in job order.
 
     Parameters
@@ -97,6 +98,8 @@ def run_jobs(fn: Callable, jobs: Sequence, *, workers: Optional[int] = None, sch
         ``progress(done, total)`` in the units of ``weights``, after each job.
     on_result : callable, optional
         ``on_result(index, result)`` as each job completes.
+    connect_timeout_s : float
+        How long to try to reach ``scheduler``.
 
     Raises
     ------
@@ -124,7 +127,7 @@ def run_jobs(fn: Callable, jobs: Sequence, *, workers: Optional[int] = None, sch
         return results
     from dask.distributed import as_completed
 
-    with _client(workers, scheduler) as client:
+    with _client(workers, scheduler, connect_timeout_s) as client:
         futures = [client.submit(fn, job, pure=False) for job in jobs]
         index = {f.key: i for i, f in enumerate(futures)}
         try:

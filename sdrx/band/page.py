@@ -13,8 +13,6 @@ from __future__ import annotations
 import base64
 import html
 
-from ..units import format_frequency
-
 __all__ = ["render_band_page"]
 
 _CSS = """
@@ -50,7 +48,7 @@ def _station_row(st: dict, svg: str) -> str:
     label = f"{st['name']} ({st['folder']})" if st.get("folder") else st["name"]
     return (
         f'<tr class="station" data-station="{_e(st["name"])}" data-tune-hz="{_e(repr(float(st["tune_hz"])))}">'
-        f'<td>{_e(format_frequency(st["tune_hz"]))}<br><span class="meta">{_e(st["chain"])}</span></td>'
+        f'<td>{_e(st["name"][:-1])} kHz<br><span class="meta">{_e(st["chain"])}</span></td>'
         f'<td class="n">{_db(c["mean"])}<br><span class="meta">{_db(c["min"])} .. {_db(c["max"])}</span></td>'
         f'<td class="n">{_db(g["min"])} .. {_db(g["max"])}</td>'
         f'<td>{svg}</td>'
