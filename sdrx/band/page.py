@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import base64
 import html
+from urllib.parse import quote
 
 __all__ = ["render_band_page"]
 
@@ -52,7 +53,7 @@ def _station_row(st: dict, svg: str) -> str:
         f'<td class="n">{_db(c["mean"])}<br><span class="meta">{_db(c["min"])} .. {_db(c["max"])}</span></td>'
         f'<td class="n">{_db(g["min"])} .. {_db(g["max"])}</td>'
         f'<td>{svg}</td>'
-        f'<td><audio class="station" controls preload="metadata" src="{_e(st["file"])}" data-label="{_e(label)}"></audio></td>'
+        f'<td><audio class="station" controls preload="metadata" src="{_e(quote(st["file"]))}" data-label="{_e(label)}"></audio></td>'
         f'<td class="warn">{warn}</td></tr>'
     )
 

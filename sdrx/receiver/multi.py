@@ -29,7 +29,9 @@ import numpy as np
 from ..dsp.channelbank import ChannelBank
 from .receiver import Receiver
 
-__all__ = ["MultiReceiver", "StationReceiver"]
+__all__ = ["MultiReceiver", "StationReceiver", "BACK_END_THREADS"]
+
+BACK_END_THREADS = 2   # this machine's cores; the back ends of many stations share them
 
 
 class _BankedFront:
@@ -161,6 +163,7 @@ class MultiReceiver:
         self.groups = [_Group(m, info, first_sample) for m in by_rate.values()]
         self._order = [self.stations.index(rx) for g in self.groups for rx in g.members]
         self._pool = None
+        self._back_pool = None
         self._pending = None      # (n_in, [u per station]) of the previous block
         self._flushed = False
         self._mark = None         # capture sample at which the statistics restart
@@ -184,8 +187,18 @@ class MultiReceiver:
         return out
 
     def _back_ends(self, n_in: int, us) -> list:
-        """Each station's back end on its IF output: the seam for a back end vectorised across stations."""
-        return [self._feed(i, n_in, u) for i, u in enumerate(us)]
+        """Each station's back end on its IF output: the seam for a back end vectorised across stations.
+
+        Stations are independent, so they run on a small pool of threads (numpy and scipy release the
+        interpreter in their array loops); each station's output does not depend on the order.
+        """
+        if len(us) < 2:
+            return [self._feed(i, n_in, u) for i, u in enumerate(us)]
+        if self._back_pool is None:
+            from concurrent.futures import ThreadPoolExecutor
+
+            self._back_pool = ThreadPoolExecutor(max_workers=BACK_END_THREADS, thread_name_prefix="sdrx-band-back")
+        return list(self._back_pool.map(lambda i: self._feed(i, n_in, us[i]), range(len(us))))
 
     def _feed(self, i: int, n_in: int, u) -> np.ndarray:
         rx = self.stations[i]
@@ -229,12 +242,16 @@ class MultiReceiver:
         self._flushed = True
         head = self._back_ends(*self._pending) if self._pending is not None else [np.zeros(0)] * len(self.stations)
         self._pending = None
-        self.close()
         tails = self._front_tail()
-        return [np.concatenate([h, rx.finish(t)]) for h, rx, t in zip(head, self.stations, tails)]
+        try:
+            return [np.concatenate([h, rx.finish(t)]) for h, rx, t in zip(head, self.stations, tails)]
+        finally:
+            self.close()
 
     def close(self) -> None:
         """Stop the worker thread (also after an error part-way through); idempotent."""
-        if self._pool is not None:
-            self._pool.shutdown(wait=True, cancel_futures=True)
-            self._pool = None
+        for name in ("_pool", "_back_pool"):
+            pool = getattr(self, name)
+            if pool is not None:
+                pool.shutdown(wait=True, cancel_futures=True)
+                setattr(self, name, None)
