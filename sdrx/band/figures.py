@@ -48,7 +48,7 @@ def spectrogram_png(freqs_hz, times_s, db, stations, *, title: str = "", column_
 
     f = np.asarray(freqs_hz, dtype=float) / 1e3
     t = np.asarray(times_s, dtype=float)
-    z = np.asarray(db, dtype=float)
+    z = _pool(np.asarray(db, dtype=float), 600, 1000)
     with matplotlib.rc_context({"font.size": 9, "text.parse_math": False, "svg.hashsalt": "sdrx-band"}):
         fig = Figure(figsize=(10.0, 5.2), dpi=_DPI)
         ax = fig.add_subplot(1, 1, 1)
@@ -59,7 +59,7 @@ def spectrogram_png(freqs_hz, times_s, db, stations, *, title: str = "", column_
             t_end = (t[-1] + column_s) if len(t) else 1.0
             im = ax.imshow(z, aspect="auto", origin="upper", cmap="viridis", vmin=lo, vmax=hi,
                            extent=(f[0], f[-1], t_end, t[0] if len(t) else 0.0), interpolation="nearest")
-            cb = fig.colorbar(im, ax=ax, pad=0.01)
+            cb = fig.colorbar(im, ax=ax, pad=0.01, fraction=0.04)
             cb.set_label("dBFS (peak-scaled)")
         ax.set_xlabel("frequency, kHz")
         ax.set_ylabel("time, s")
@@ -72,10 +72,24 @@ def spectrogram_png(freqs_hz, times_s, db, stations, *, title: str = "", column_
         else:
             top.set_xticklabels([])
         top.tick_params(length=6, color="#D55E00", width=1.2)
-        fig.tight_layout()
+        fig.subplots_adjust(left=0.07, right=0.98, bottom=0.1, top=0.84)
         buf = io.BytesIO()
         fig.savefig(buf, format="png", dpi=_DPI, metadata={"Software": None})
     return buf.getvalue()
+
+
+def _pool(db: np.ndarray, rows: int, cols: int) -> np.ndarray:
+    """At most ``rows`` × ``cols`` cells for the picture: power averaged over each block of cells."""
+    if db.ndim != 2 or db.size == 0:
+        return db
+    r = max(1, -(-db.shape[0] // rows))
+    c = max(1, -(-db.shape[1] // cols))
+    if r == 1 and c == 1:
+        return db
+    n0, n1 = db.shape[0] // r * r, db.shape[1] // c * c
+    p = 10.0 ** (db[:n0, :n1] / 10.0)
+    p = p.reshape(n0 // r, r, n1 // c, c).mean(axis=(1, 3))
+    return 10.0 * np.log10(p)
 
 
 def capture_spectrogram_png(reader, *, spacing_hz: float, start_s=0.0, duration_s=None, stations=(),

@@ -2,8 +2,9 @@
 
 Columns lie on a grid of ``column`` capture samples from the excerpt's
 first sample; each column is the average power spectrum of up to
-``frames`` consecutive Hann-windowed frames of ``nfft`` samples from the
-column's start. Because the grid is fixed by the excerpt (not by how it is
+``frames`` (4) consecutive Hann-windowed frames of ``nfft`` samples from the
+column's start (a sampled picture: a burst shorter than a column may fall
+between the frames). Because the grid is fixed by the excerpt (not by how it is
 read), segments computed apart and put side by side give the same picture
 as one pass over the whole excerpt.
 
@@ -24,7 +25,7 @@ import numpy as np
 __all__ = ["SpectrogramPlan", "plan_spectrogram", "SpectrogramAccumulator", "spectrogram"]
 
 MAX_COLUMNS = 1200
-MAX_FRAMES = 32
+MAX_FRAMES = 4
 _BINS_PER_CHANNEL = 8
 _NICE_S = (0.05, 0.1, 0.2, 0.25, 0.5, 1, 2, 5, 10, 15, 20, 30, 60, 120, 300, 600, 1200, 1800, 3600)
 _FLOOR = 1e-20   # -200 dB: empty bins of a noiseless capture
@@ -92,7 +93,7 @@ def plan_spectrogram(info, first: int, count: int, spacing_hz: float, segment_sa
     >>> info = SimpleNamespace(fs=2.4e6, kind="iq", center_hz=1.2e6)
     >>> p = plan_spectrogram(info, 0, 24_000_000, 10e3, 144_000_000)
     >>> p.nfft, p.column / info.fs, p.frames, p.n_columns
-    (2048, 0.01, 11, 1000)
+    (2048, 0.01, 4, 1000)
     """
     fs = float(info.fs)
     nfft = 1 << max(4, math.ceil(math.log2(fs * _BINS_PER_CHANNEL / spacing_hz)))
