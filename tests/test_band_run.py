@@ -28,6 +28,8 @@ from sdrx.chain import design_chain
 from sdrx.receiver import Receiver
 from sdrx.run import receive
 
+FLOAT_TUNES = (850e3, 1010e3)   # fading speech and a steady tone
+
 
 @pytest.fixture(scope="module")
 def received(band_capture, tmp_path_factory):
@@ -35,7 +37,7 @@ def received(band_capture, tmp_path_factory):
     d = tmp_path_factory.mktemp("receive")
     out = {}
     for f in TUNES:
-        for kind in ("pcm", "float"):
+        for kind in ("pcm", "float") if f in FLOAT_TUNES else ("pcm",):
             p = d / f"{f / 1e3:g}k-{kind}.wav"
             s = receive(band_capture, f, "medium", p, float_output=kind == "float", force=True)
             out[f, kind] = (p, s)
@@ -52,11 +54,12 @@ def band_run(band_capture, tmp_path_factory):
 
 def test_one_segment_is_receive_byte_for_byte(band_capture, received, tmp_path):
     band([band_capture], tmp_path / "one", stations="all", segment_s=0)
-    band([band_capture], tmp_path / "onef", stations="all", segment_s=0, float_output=True)
+    band([band_capture], tmp_path / "onef", stations="850k,1010k", segment_s=0, float_output=True)
     for f in TUNES:
         name = f"{f / 1e3:g}k.wav"
         assert (tmp_path / "one" / name).read_bytes() == received[f, "pcm"][0].read_bytes()
-        assert (tmp_path / "onef" / name).read_bytes() == received[f, "float"][0].read_bytes()
+        if f in FLOAT_TUNES:
+            assert (tmp_path / "onef" / name).read_bytes() == received[f, "float"][0].read_bytes()
 
 
 def test_segmented_pcm_matches_receive(band_run, received):

@@ -293,7 +293,7 @@ def band(captures, out_dir, *, stations="all", min_level_dbfs=None, chains=(), s
     if work_dir is not None and not Path(work_dir).is_dir():
         raise ParameterError(f"--work-dir {work_dir}: not a folder")
     if freqs is None:
-        jobs = [(c.arg, kwargs, spacing, start_s, duration_s) for c in caps]
+        jobs = [(str(Path(c.arg).absolute()), kwargs, spacing, start_s, duration_s) for c in caps]
         for c, s in zip(caps, _run(_survey_job, jobs, workers, scheduler)):
             c.survey = s
     for c in caps:
@@ -329,12 +329,13 @@ def _receive_all(caps, kwargs, names, tmp, designs, float_output, workers, sched
     from .segment import SegmentJob, StationJob, run_segment
 
     local = workers is None and scheduler is None
-    parts_dir = None if local else Path(tempfile.mkdtemp(prefix=".sdrx-band-parts-", dir=work_dir or out))
+    # absolute paths: a worker on another machine (or in another folder) sees the same shared storage
+    parts_dir = None if local else Path(tempfile.mkdtemp(prefix=".sdrx-band-parts-", dir=work_dir or out)).absolute()
     jobs, weights = [], []
     for c in caps:
         st = tuple(StationJob(f, designs[spec]) for f, spec in c.stations)
         for s in c.segments:
-            jobs.append(SegmentJob(c.index, str(c.arg), kwargs, st, s, c.first, c.count, float_output, c.spectrogram,
+            jobs.append(SegmentJob(c.index, str(Path(c.arg).absolute()), kwargs, st, s, c.first, c.count, float_output, c.spectrogram,
                                    None if parts_dir is None else str(parts_dir)))
             weights.append(s.samples)
     streams = _Streams(caps, names, tmp, designs, float_output)
