@@ -30,9 +30,13 @@ echo "== 6. A/B listening page: wide against narrow on 1130 kHz"
 $SDRX compare demo_signals/coast.sigmf-meta --tune 1130k wide narrow -o "$OUT/compare" \
     --blind 6 --seed 11 --force --quiet
 
+echo "== 7. every station of the capture at once: WAVs, level log, overview page"
+$SDRX band demo_signals/coast.sigmf-meta -o "$OUT/band" --force --quiet
+
 echo
 echo "Demo outputs in $OUT/:"
 echo "  audio:     $OUT/harbour-600k.wav, $OUT/harbour-600k-no-preselector.wav, $OUT/tidewater-1130k.wav"
 echo "  summaries: $OUT/harbour-600k.json, $OUT/harbour-600k-no-preselector.json, $OUT/tidewater-1130k.json"
 echo "  report:    $OUT/report/report.html"
 echo "  compare:   $OUT/compare/index.html"
+echo "  band:      $OUT/band/index.html (one WAV per station, band.json, log.csv)"

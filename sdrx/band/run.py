@@ -35,17 +35,10 @@ from .choices import parse_chains, parse_stations
 from .outputs import MARKER, capture_folders, check_band_dir, output_set, remove_stale, station_name
 from .plan import cut_period, grid_period, plan_segments, settle_time_s
 
-__all__ = ["band", "DEFAULT_SEGMENT_S", "CORRECTIONS_HOOK"]
+__all__ = ["band", "DEFAULT_SEGMENT_S"]
 
 DEFAULT_SEGMENT_S = 60.0
 JSON_FILE, LOG_FILE, PAGE_FILE = "band.json", "log.csv", "index.html"
-
-#: Capture corrections (DC, I/Q balance, clock) run between the reader and the receiver as a
-#: streaming stage; when they exist, each segment job applies them to the blocks it reads, on the
-#: whole capture's grid like the receiver's state (a correction estimated from the whole capture is
-#: estimated once, by the client, and passed in the job). Not built yet: band has no --correct.
-CORRECTIONS_HOOK = None
-
 
 @dataclass
 class _Capture:
@@ -335,8 +328,8 @@ def _receive_all(caps, kwargs, names, tmp, designs, float_output, workers, sched
     for c in caps:
         st = tuple(StationJob(f, designs[spec]) for f, spec in c.stations)
         for s in c.segments:
-            jobs.append(SegmentJob(c.index, str(Path(c.arg).absolute()), kwargs, st, s, c.first, c.count, float_output, c.spectrogram,
-                                   None if parts_dir is None else str(parts_dir)))
+            jobs.append(SegmentJob(c.index, str(Path(c.arg).absolute()), kwargs, st, s, c.first, c.count,
+                                   float_output, c.spectrogram, None if parts_dir is None else str(parts_dir)))
             weights.append(s.samples)
     streams = _Streams(caps, names, tmp, designs, float_output)
     results = {}
