@@ -23,7 +23,7 @@ from typing import Callable, Optional, Sequence
 
 from .errors import ParameterError
 
-__all__ = ["run_jobs", "describe"]
+__all__ = ["run_jobs", "describe", "check_workers"]
 
 LOOPBACK = "127.0.0.1"
 
@@ -43,7 +43,8 @@ def describe(workers: Optional[int], scheduler: Optional[str]) -> str:
     return "this process"
 
 
-def _check(workers, scheduler) -> None:
+def check_workers(workers, scheduler) -> None:
+    """Refuse both at once, or a number of workers that is not a whole number >= 1."""
     if workers is not None and scheduler is not None:
         raise ParameterError("--workers and --scheduler: give one of them (local workers or an existing cluster)")
     if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or workers < 1):
@@ -111,7 +112,7 @@ def run_jobs(fn: Callable, jobs: Sequence, *, workers: Optional[int] = None, sch
     >>> run_jobs(abs, [-1, 2, -3])
     [1, 2, 3]
     """
-    _check(workers, scheduler)
+    check_workers(workers, scheduler)
     w = list(weights) if weights is not None else [1] * len(jobs)
     total = sum(w)
     results = [None] * len(jobs)

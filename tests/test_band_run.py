@@ -262,3 +262,17 @@ def test_cli_runs_and_reports(band_capture, tmp_path, capsys):
     assert rc == 0
     assert "1 stations from 1 capture(s), 1 segment(s) on this process" in out
     assert sf.info(str(tmp_path / "c" / "1010k.wav")).frames == 96000
+
+
+def test_no_carrier_found_is_one_line(tmp_path, capsys):
+    from sdrx.capture import open_writer
+
+    p = tmp_path / "quiet.sigmf-meta"
+    rng = np.random.default_rng(2)
+    n = int(480e3)
+    with open_writer(p, fs=480e3, kind="iq", datatype="cf32_le", center_hz=1e6) as w:
+        w.write((1e-4 * (rng.standard_normal(n) + 1j * rng.standard_normal(n))).astype(np.complex64))
+    rc, _, err = cli(["band", p, "-o", tmp_path / "o", "--quiet"], capsys)
+    assert rc == 2 and err.count("\n") == 1
+    assert "the survey found no carrier to receive in" in err and "--stations F,F,..." in err
+    assert not (tmp_path / "o").exists()

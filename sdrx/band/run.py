@@ -264,9 +264,9 @@ def band(captures, out_dir, *, stations="all", min_level_dbfs=None, chains=(), s
     SdrxError
         Any bad input, before anything is written.
     """
-    from ..parallel import _check
+    from ..parallel import check_workers
 
-    _check(workers, scheduler)
+    check_workers(workers, scheduler)
     kwargs = {"datatype": datatype, "fs": fs, "center_hz": center_hz}
     caps = _open_captures(captures, kwargs, start_s, duration_s)
     inputs = [p for c in caps for p in (c.info.path, c.info.data_path)]
