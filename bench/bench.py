@@ -188,8 +188,11 @@ def bench_band(work: Path, runs: int) -> None:
         "ten": band + [str(short), "--stations", ten, "-o", str(work / "b-ten")],
         "ten_long": band + [str(long_), "--stations", ten, "-o", str(work / "b-ten-long")],
         "one": band + [str(short), "--stations", "1000k", "-o", str(work / "b-one")],
+        "one_long": band + [str(long_), "--stations", "1000k", "-o", str(work / "b-one-long")],
         "receive": [sys.executable, "-m", "sdrx", "receive", str(short), "--tune", "1000k", "--quiet", "--force",
                     "-o", str(work / "r-one.wav")],
+        "receive_long": [sys.executable, "-m", "sdrx", "receive", str(long_), "--tune", "1000k", "--quiet",
+                         "--force", "-o", str(work / "r-one-long.wav")],
     }
     res = {k: [] for k in cmds}
     timed(cmds["one"])  # warm-up
@@ -216,6 +219,8 @@ def bench_band(work: Path, runs: int) -> None:
     print(f"1 station, band / receive (wall, paired):    {ratio:6.2f}    target <= 1.0")
     print(f"117 stations steady-state speed:             {steady('all', 'all_long'):6.2f}x real time")
     print(f"10 stations steady-state speed:              {steady('ten', 'ten_long'):6.2f}x real time")
+    print(f"1 station steady-state speed, band / receive: {steady('one', 'one_long'):6.2f}x / "
+          f"{steady('receive', 'receive_long'):.2f}x real time (band also draws the spectrogram and the page)")
     print(f"peak memory, 117 stations, 20 s / 10 s:      {med['all_long'][1] / med['all'][1]:6.2f}    target <= 1.10")
 
 
