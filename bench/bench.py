@@ -13,6 +13,10 @@ that drift of the machine's speed hits all of them alike:
 - the plain whole-file pipeline of ``bench/baseline.py``, on the capture and
   on one half as long.
 
+- ``sdrx band`` on a capture with a carrier on each of the 117 channels from
+  540 to 1700 kHz (every station, ten, one beside ``sdrx receive``), 10 s and
+  20 s long (``bench_band``; ``--band-only`` times only these).
+
 Steady-state speeds come from two lengths of capture (the extra capture
 seconds over the extra wall time), which leaves out the fixed start-up of a
 process (Python and scipy imports, about a second).
@@ -106,6 +110,8 @@ def main(argv=None) -> int:
     ap.add_argument("--factor", type=int, default=6, help="the long capture is this many times longer")
     ap.add_argument("--runs", type=int, default=3, help="runs of each command")
     ap.add_argument("--keep", type=Path, default=None, help="keep the captures in this folder")
+    ap.add_argument("--band-runs", type=int, default=2, help="runs of each band command (0: leave band out)")
+    ap.add_argument("--band-only", action="store_true", help="time only the band commands")
     args = ap.parse_args(argv)
     work = args.keep or Path(tempfile.mkdtemp(prefix="sdrx-bench-"))
     work.mkdir(parents=True, exist_ok=True)
@@ -116,6 +122,9 @@ def main(argv=None) -> int:
 
         subprocess.run([sys.executable, "-m", "compileall", "-q", str(Path(sdrx.__file__).parent)],
                        check=True, stdout=subprocess.DEVNULL)
+        if args.band_only:
+            bench_band(work, args.band_runs)
+            return 0
         print(f"synthesizing captures in {work} ...", flush=True)
         short, long_, half = make_captures(work, args.seconds, args.factor)
         sdrx = [sys.executable, "-m", "sdrx", "receive", "--tune", "1M", "--quiet", "--force"]
@@ -175,10 +184,65 @@ def main(argv=None) -> int:
               f"(fixed start-up per process {startup:.2f} s)")
         print(f"plain pipeline steady-state speed:          {base_steady:6.1f}x real time")
         print(f"steady-state speed, fast path / plain:      {steady / base_steady:6.1f}x   target >= 10x")
+        if args.band_runs:
+            bench_band(work, args.band_runs)
     finally:
         if args.keep is None:
             shutil.rmtree(work, ignore_errors=True)
     return 0
+
+
+def bench_band(work: Path, runs: int) -> None:
+    """sdrx band on a carrier in every 10 kHz channel from 540 to 1700 kHz (117 stations), 10 s and 20 s."""
+    sys.path.insert(0, str(HERE))
+    from band_capture import make
+
+    print(f"\nsynthesizing the band captures (117 stations, 2.4 MS/s ci16_le) in {work} ...", flush=True)
+    short, long_ = work / "band10.sigmf-meta", work / "band20.sigmf-meta"
+    freqs = make(short, 10.0)
+    make(long_, 20.0)
+    ten = ",".join(f"{f / 1e3:g}k" for f in freqs[::12][:10])
+    band = [sys.executable, "-m", "sdrx", "band", "--quiet", "--force"]
+    cmds = {
+        "all": band + [str(short), "-o", str(work / "b-all")],
+        "all_long": band + [str(long_), "-o", str(work / "b-all-long")],
+        "ten": band + [str(short), "--stations", ten, "-o", str(work / "b-ten")],
+        "ten_long": band + [str(long_), "--stations", ten, "-o", str(work / "b-ten-long")],
+        "one": band + [str(short), "--stations", "1000k", "-o", str(work / "b-one")],
+        "one_long": band + [str(long_), "--stations", "1000k", "-o", str(work / "b-one-long")],
+        "receive": [sys.executable, "-m", "sdrx", "receive", str(short), "--tune", "1000k", "--quiet", "--force",
+                    "-o", str(work / "r-one.wav")],
+        "receive_long": [sys.executable, "-m", "sdrx", "receive", str(long_), "--tune", "1000k", "--quiet",
+                         "--force", "-o", str(work / "r-one-long.wav")],
+    }
+    res = {k: [] for k in cmds}
+    timed(cmds["one"])  # warm-up
+    for _ in range(runs):
+        for k, c in cmds.items():
+            res[k].append(timed(c))
+    med = {k: (statistics.median(w for w, _ in v), max(m for _, m in v)) for k, v in res.items()}
+
+    def steady(a, b):
+        return statistics.median(10.0 / (lg[0] - sh[0]) for lg, sh in zip(res[b], res[a]))
+
+    print(f"\nband: {runs} runs each, whole processes, medians (2 cores shared with other work: noisy)")
+    print(f"{'run':40s} {'wall s':>8s} {'x real time':>12s} {'peak MB':>9s}   target")
+    rows = [("117 stations (--stations all), 10 s", "all", 10.0, ">= 3x real time, <= 1000 MB"),
+            ("117 stations, 20 s capture", "all_long", 20.0, "peak MB flat"),
+            ("10 stations, 10 s", "ten", 10.0, ">= 15x real time"),
+            ("10 stations, 20 s capture", "ten_long", 20.0, ""),
+            ("1 station (band), 10 s", "one", 10.0, "no slower than receive"),
+            ("1 station (receive), 10 s", "receive", 10.0, "")]
+    for label, k, d, target in rows:
+        w, m = med[k]
+        print(f"{label:40s} {w:8.2f} {d / w:12.2f} {m:9.1f}   {target}")
+    ratio = statistics.median(b[0] / r[0] for b, r in zip(res["one"], res["receive"]))
+    print(f"1 station, band / receive (wall, paired):    {ratio:6.2f}    target <= 1.0")
+    print(f"117 stations steady-state speed:             {steady('all', 'all_long'):6.2f}x real time")
+    print(f"10 stations steady-state speed:              {steady('ten', 'ten_long'):6.2f}x real time")
+    print(f"1 station steady-state speed, band / receive: {steady('one', 'one_long'):6.2f}x / "
+          f"{steady('receive', 'receive_long'):.2f}x real time (band also draws the spectrogram and the page)")
+    print(f"peak memory, 117 stations, 20 s / 10 s:      {med['all_long'][1] / med['all'][1]:6.2f}    target <= 1.10")
 
 
 if __name__ == "__main__":

@@ -47,6 +47,9 @@ print(f"   corrected: DC {c['dc']['dbfs']:.1f} dBFS removed; I/Q {c['iq']['gain_
       f"clock {c['clock']['ppm']:+.2f} ppm undone")
 PY
 
+echo "== 8. every station of the capture at once: WAVs, level log, overview page"
+$SDRX band demo_signals/coast.sigmf-meta -o "$OUT/band" --force --quiet
+
 echo
 echo "Demo outputs in $OUT/:"
 echo "  audio:     $OUT/harbour-600k.wav, $OUT/harbour-600k-no-preselector.wav, $OUT/tidewater-1130k.wav"
@@ -54,3 +57,4 @@ echo "  summaries: $OUT/harbour-600k.json, $OUT/harbour-600k-no-preselector.json
 echo "  report:    $OUT/report/report.html"
 echo "  compare:   $OUT/compare/index.html"
 echo "  faults:    $OUT/saltmarsh-as-recorded.wav (as recorded), $OUT/saltmarsh-corrected.wav (--correct all)"
+echo "  band:      $OUT/band/index.html (one WAV per station, band.json, log.csv)"

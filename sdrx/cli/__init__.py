@@ -24,6 +24,7 @@ _COMMANDS = {
     "plan": "plan",
     "compare": "compare",
     "refs": "refs",
+    "band": "band",
 }
 
 

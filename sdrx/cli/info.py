@@ -10,6 +10,8 @@ from ..analysis.survey import DEFAULT_THRESHOLD_DB, band_statistics, survey_stat
 from ..capture import open_capture
 from ..capture.impairments import CARRIER_TOLERANCE_HZ, estimate_from_statistics
 from ..units import format_frequency
+from ..errors import ParameterError
+from ..fileio import atomic_path, check_output
 from .common import capture_kwargs, capture_options, progress_for
 
 __all__ = ["command", "format_info", "format_impairments"]
@@ -96,8 +98,11 @@ def format_info(info, result, first: int, count: int, impairments=None) -> str:
 @click.option("--spacing", default="10k", show_default=True, metavar="HZ",
               help="Channel spacing of the grid: 9k (ITU Regions 1 and 3) or 10k (Region 2).")
 @click.option("--json", "as_json", is_flag=True, help="Print metadata and carriers as JSON.")
+@click.option("--spectrogram", "spectrogram", default=None, type=click.Path(dir_okay=False), metavar="PNG",
+              help="Also draw the excerpt's spectrogram with the carriers found marked (the band overview's picture).")
+@click.option("--force", is_flag=True, help="Replace an existing --spectrogram file.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
-def command(capture, datatype, rate, center, start, duration, spacing, as_json, quiet):
+def command(capture, datatype, rate, center, start, duration, spacing, as_json, spectrogram, force, quiet):
     """Metadata of CAPTURE, the carriers on the channel grid (strongest first) and the recorder's faults.
 
     CAPTURE is a WAV/RF64/W64 file (mono: real RF; stereo: I/Q, needs
@@ -116,6 +121,11 @@ def command(capture, datatype, rate, center, start, duration, spacing, as_json, 
     reader = open_capture(capture, **capture_kwargs(datatype, rate, center))
     info = reader.info
     first, count = reader.sample_range(start, duration)
+    png_path = None
+    if spectrogram is not None:
+        png_path = check_output(spectrogram, inputs=[info.path, info.data_path], force=force, option="--spectrogram")
+        if png_path.suffix.lower() != ".png":
+            raise ParameterError(f"--spectrogram {png_path}: the picture is written as PNG; name a .png file")
     bar = progress_for("surveying", quiet)
     try:
         band = band_statistics(reader, spacing_hz=spacing, start_s=start, duration_s=duration, progress=bar)
@@ -124,6 +134,8 @@ def command(capture, datatype, rate, center, start, duration, spacing, as_json, 
             bar.close()
     result = survey_statistics(band, band_spacing(spacing), DEFAULT_THRESHOLD_DB)
     impairments = estimate_from_statistics(band, result)
+    if png_path is not None:
+        _write_spectrogram(reader, png_path, result, start, duration, quiet)
     if as_json:
         data = info.to_json()
         data["start_s"] = first / info.fs
@@ -140,3 +152,19 @@ def band_spacing(spacing) -> float:
     from ..units import parse_frequency
 
     return parse_frequency(spacing, "--spacing")
+
+
+def _write_spectrogram(reader, path, result, start, duration, quiet) -> None:
+    from ..band.figures import capture_spectrogram_png
+    from ..band.outputs import station_name
+
+    bar = progress_for("spectrogram", quiet)
+    try:
+        png = capture_spectrogram_png(reader, spacing_hz=result.spacing_hz, start_s=start, duration_s=duration,
+                                      stations=[(c.freq_hz, station_name(c.freq_hz)) for c in
+                                                sorted(result.carriers, key=lambda c: c.freq_hz)], progress=bar)
+    finally:
+        if bar is not None:
+            bar.close()
+    with atomic_path(path) as tmp:
+        tmp.write_bytes(png)

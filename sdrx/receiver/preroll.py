@@ -12,15 +12,19 @@ and phase, fed through the whole chain and its output discarded. Every stage
 is then in its steady state for the carriers when the real samples arrive,
 and the carriers run on without a break in phase:
 
-1. :func:`estimate_carriers` finds the carriers near the channels the
-   receiver cuts out (the wanted and the image channel) in the first
-   ``ESTIMATE_S`` of the capture: peaks of a Blackman-windowed, zero-padded
-   spectrum, the frequency refined by parabolic interpolation of the log
-   spectrum, the complex amplitude by the windowed DTFT at that frequency
-   (Harris, "On the use of windows for harmonic analysis with the discrete
-   Fourier transform", Proc. IEEE 66(1), 1978: the Blackman window's side
-   lobes, −58 dB, keep the programme's sidebands and the neighbours out).
-2. :func:`carrier_history` renders them for the samples before the start.
+1. :func:`estimate_carriers` finds the carriers of the whole band in the
+   first ``ESTIMATE_S`` of the capture: peaks of a Blackman-windowed,
+   zero-padded spectrum, the frequency refined by parabolic interpolation of
+   the log spectrum, the complex amplitude by the windowed DTFT at that
+   frequency (Harris, "On the use of windows for harmonic analysis with the
+   discrete Fourier transform", Proc. IEEE 66(1), 1978: the Blackman window's
+   side lobes, −58 dB, keep the programme's sidebands and the neighbours out).
+   Every carrier counts, not only those near the tune: a strong carrier that
+   switched on at the first sample would put the channelizer's impulse
+   response, scaled by about h_peak/Δω, into every channel (a click).
+2. :func:`carrier_history` renders them for the samples before the start:
+   those near the receiver's channels for the whole pre-roll, the others
+   faded in smoothly just before the first sample.
 3. :func:`preroll_seconds` sizes the pre-roll from the chain itself: the
    slowest pole of the IF stages (while the AGC holds its gain), then the
    slowest pole of the audio filters and the detector's own settling (after
@@ -41,13 +45,17 @@ import numpy as np
 from scipy import signal
 
 __all__ = ["Carrier", "estimate_carriers", "carrier_history", "preroll_seconds", "preroll_samples",
-           "ESTIMATE_S"]
+           "ESTIMATE_S", "TILE_HZ", "FADE_S"]
 
 #: how much of the capture's start the carriers are estimated from, s
 ESTIMATE_S = 0.08
 #: decay each stage is given before the next stage's settling starts: −100 dB
 _SETTLE_NEPERS = math.log(1e5)
-_PEAK_DB = 20.0          # a carrier stands this far over the median of its window
+#: the band is searched for carriers in tiles this wide, each against its own median
+TILE_HZ = 100e3
+#: carriers away from the receiver's channels fade in between these times before the first sample, s
+FADE_S = (0.004, 0.002)
+_PEAK_DB = 20.0          # a carrier stands this far over the median of its tile
 _RANGE_DB = 100.0        # and within this much of the strongest one (the window's side lobes are not carriers)
 _MAX_PER_WINDOW = 24
 
@@ -61,7 +69,8 @@ class Carrier:
 
 
 def _window_peaks(p_db: np.ndarray, lo: int, hi: int, halfwidth: int):
-    """Bins of local maxima in p_db[lo:hi] standing _PEAK_DB over the window's median."""
+    """Bins of local maxima in p_db[lo:hi] standing _PEAK_DB over the window's median (and within
+    _RANGE_DB of the window's strongest: a window's carriers depend on that window only)."""
     seg = p_db[lo:hi]
     if len(seg) < 3:
         return []
@@ -69,11 +78,35 @@ def _window_peaks(p_db: np.ndarray, lo: int, hi: int, halfwidth: int):
     big = signal.argrelmax(seg, order=halfwidth, mode="clip")[0]
     big = [k for k in big if seg[k] > floor + _PEAK_DB and 0 < k < len(seg) - 1]
     big.sort(key=lambda k: -seg[k])
-    return [lo + k for k in big[:_MAX_PER_WINDOW]]
+    big = big[:_MAX_PER_WINDOW]
+    if big:
+        top = seg[big[0]]
+        big = [k for k in big if seg[k] > top - _RANGE_DB]
+    return [lo + k for k in big]
 
 
-def estimate_carriers(x: np.ndarray, fs: float, is_complex: bool, windows_hz) -> list:
-    """Steady carriers in x (the capture's first samples) inside the given frequency windows.
+def _blackman_transform(theta: np.ndarray, n: int) -> np.ndarray:
+    """Σ_m w[m]·e^{−jθm} of numpy's n-point Blackman window, in closed form.
+
+    w[m] = 0.42 − 0.5·cos(2πm/(n−1)) + 0.08·cos(4πm/(n−1)) (Harris 1978), each term a geometric sum.
+    """
+    def geometric(t):
+        t = np.asarray(t, float)
+        z = np.exp(-1j * t)
+        small = np.abs(np.sin(t / 2)) < 1e-12
+        with np.errstate(divide="ignore", invalid="ignore"):
+            s = (1 - z ** n) / (1 - z)
+        return np.where(small, complex(n), s)   # θ a whole number of turns: every term is 1
+    a1, a2 = 2 * np.pi / (n - 1), 4 * np.pi / (n - 1)
+    return (0.42 * geometric(theta) - 0.25 * (geometric(theta - a1) + geometric(theta + a1))
+            + 0.04 * (geometric(theta - a2) + geometric(theta + a2)))
+
+
+def estimate_carriers(x: np.ndarray, fs: float, is_complex: bool) -> list:
+    """Steady carriers in x (the capture's first samples) over the whole captured band.
+
+    The band is searched in tiles of ``TILE_HZ``, each against its own median,
+    so the carriers found do not depend on who asks (one receiver or many).
 
     Parameters
     ----------
@@ -82,19 +115,24 @@ def estimate_carriers(x: np.ndarray, fs: float, is_complex: bool, windows_hz) ->
     fs : float
         Sample rate, Hz.
     is_complex : bool
-    windows_hz : sequence of (low, high)
-        Frequency ranges to search, in the capture's frequency axis.
 
     Returns
     -------
     list of Carrier
+
+    Notes
+    -----
+    The complex amplitude comes from the zero-padded spectrum at the peak's
+    bin divided by the window's own transform at the offset between that bin
+    and the interpolated frequency (the Blackman window's transform in closed
+    form), which equals the windowed DTFT at the interpolated frequency.
 
     Examples
     --------
     >>> fs = 48000.0
     >>> n = np.arange(4800)
     >>> x = 0.1 * np.exp(1j * (2 * np.pi * 1234.5 * n / fs + 0.3))
-    >>> c = estimate_carriers(x, fs, True, [(0.0, 5000.0)])
+    >>> c = estimate_carriers(x, fs, True)
     >>> round(c[0].freq_hz, 2), round(abs(c[0].amplitude), 4), round(float(np.angle(c[0].amplitude)), 3)
     (1234.5, 0.1, 0.3)
     """
@@ -107,33 +145,39 @@ def estimate_carriers(x: np.ndarray, fs: float, is_complex: bool, windows_hz) ->
     X = np.fft.fft(w * x, nfft)
     p_db = 10.0 * np.log10(np.abs(X) ** 2 + 1e-300)
     freqs = np.fft.fftfreq(nfft, 1.0 / fs)
-    order = np.argsort(freqs)
-    p_db, freqs = p_db[order], freqs[order]
+    order = np.argsort(freqs, kind="stable")
+    X, p_db, freqs = X[order], p_db[order], freqs[order]
     halfwidth = max(2, int(round(3.0 * nfft / n)))   # the Blackman main lobe: ±3 bins of the unpadded DFT
-    found = set()
-    for lo_hz, hi_hz in windows_hz:
-        if not is_complex:
-            lo_hz, hi_hz = max(lo_hz, 0.0), hi_hz
-        lo, hi = np.searchsorted(freqs, [lo_hz, hi_hz])
-        found.update(_window_peaks(p_db, int(lo), int(hi), halfwidth))
-    if found:
-        top = max(p_db[k] for k in found)
-        found = {k for k in found if p_db[k] > top - _RANGE_DB}
+    lo_hz = -fs / 2 if is_complex else 0.0
+    found = []
+    for t0 in np.arange(lo_hz, fs / 2, TILE_HZ):
+        lo, hi = np.searchsorted(freqs, [t0, min(t0 + TILE_HZ, fs / 2)])
+        found += _window_peaks(p_db, int(lo), int(hi), halfwidth)
     carriers = []
-    t = np.arange(n) / fs
-    gain = np.sum(w) * (1.0 if is_complex else 0.5)
-    for k in sorted(found):
+    gain = 1.0 if is_complex else 0.5
+    for k in sorted(set(found)):
         a, b, c = p_db[k - 1], p_db[k], p_db[k + 1]
         den = a - 2 * b + c
         delta = 0.5 * (a - c) / den if den < 0 else 0.0
         f = float(freqs[k] + delta * fs / nfft)
-        amp = complex(np.sum(w * x * np.exp(-2j * np.pi * f * t)) / gain)
+        theta = 2 * np.pi * (freqs[k] - f) / fs
+        amp = complex(X[k] / (_blackman_transform(np.array([theta]), n)[0] * gain))
         carriers.append(Carrier(f, amp))
     return carriers
 
 
-def carrier_history(carriers, count: int, fs: float, is_complex: bool) -> np.ndarray:
+def _inside(f_hz: float, windows) -> bool:
+    return any(lo <= f_hz <= hi for lo, hi in windows)
+
+
+def carrier_history(carriers, count: int, fs: float, is_complex: bool, near_hz=None) -> np.ndarray:
     """The carriers over the ``count`` samples before the first one (indices −count … −1).
+
+    Carriers inside ``near_hz`` (a list of (low, high) frequency ranges: the
+    receiver's channels and their surroundings; None: all) run over the whole
+    pre-roll; the others, which the receiver's channels do not pass, need
+    only be on, without a click, when the first sample arrives: they fade in
+    (raised cosine) from ``FADE_S[0]`` to ``FADE_S[1]`` before it.
 
     Examples
     --------
@@ -141,11 +185,25 @@ def carrier_history(carriers, count: int, fs: float, is_complex: bool) -> np.nda
     >>> np.round(h, 3).tolist()
     [(-1-0j), (-0.707-0.707j), -1j, (0.707-0.707j)]
     """
-    n = np.arange(-count, 0, dtype=np.float64)
     out = np.zeros(count, complex)
+    n_fade = min(count, int(math.ceil(FADE_S[0] * fs)))
+    fade = _fade_in(n_fade, fs)
     for c in carriers:
-        out += c.amplitude * np.exp(2j * np.pi * c.freq_hz * n / fs)
+        if near_hz is None or _inside(c.freq_hz, near_hz):
+            n = np.arange(-count, 0, dtype=np.float64)
+            out += c.amplitude * np.exp(2j * np.pi * c.freq_hz * n / fs)
+        elif n_fade:
+            n = np.arange(-n_fade, 0, dtype=np.float64)
+            out[count - n_fade:] += fade * c.amplitude * np.exp(2j * np.pi * c.freq_hz * n / fs)
     return out if is_complex else out.real.copy()
+
+
+def _fade_in(n: int, fs: float) -> np.ndarray:
+    """Raised-cosine rise from FADE_S[0] to FADE_S[1] before the first sample, then 1 (n samples)."""
+    t = (np.arange(-n, 0) + 0.5) / fs            # seconds before the first sample (negative)
+    rise = FADE_S[0] - FADE_S[1]
+    u = np.clip((t + FADE_S[0]) / rise, 0.0, 1.0)
+    return 0.5 - 0.5 * np.cos(np.pi * u)
 
 
 def _slowest_decay_s(poles_rad_s) -> float:
@@ -191,15 +249,19 @@ def preroll_seconds(design, front_s: float = 0.0) -> tuple:
     return hold, settle
 
 
-def preroll_samples(seconds: float, fs: float, *other_rates: float) -> int:
-    """Smallest count ≥ seconds·fs whose duration is a whole number of samples at every other rate too.
+def preroll_samples(seconds: float, fs: float, *other_rates: float, multiple_of: int = 1) -> int:
+    """Smallest count ≥ seconds·fs whose duration is a whole number of samples at every other rate too,
+    and a multiple of ``multiple_of`` (the channelizer's hop: its segments then fall where a run without
+    the pre-roll would have them).
 
     Examples
     --------
     >>> preroll_samples(0.01, 2.4e6, 96e3, 48e3)   # a multiple of 50 samples
     24000
+    >>> preroll_samples(0.01, 2.4e6, 96e3, 48e3, multiple_of=11200)
+    33600
     """
-    grid = 1
+    grid = int(multiple_of)
     for r in other_rates:
         fr = (Fraction(r).limit_denominator(1000) / Fraction(fs).limit_denominator(1000))
         grid = grid * fr.denominator // math.gcd(grid, fr.denominator)

@@ -166,16 +166,19 @@ class Receiver:
         hold_s, settle_s = preroll.preroll_seconds(design, front_s)
         hold_s += settle_window_s(design.agc) + AGC_STEP / self.fs_ch
         rates = [self.fs_ch, design.audio.rate_hz] + ([self._if_rate] if self._if_rate else [])
-        self._pre_n = preroll.preroll_samples(hold_s + settle_s + AGC_STEP / self.fs_ch, fs, *rates)
+        self._pre_n = preroll.preroll_samples(hold_s + settle_s + AGC_STEP / self.fs_ch, fs, *rates,
+                                              multiple_of=self.plan.hop)
         self._pre_ch = int(round(self._pre_n * self.fs_ch / fs))
         self._pre_audio = int(round(self._pre_n * design.audio.rate_hz / fs))
         self._freeze_ch = int(math.ceil(hold_s * self.fs_ch))
         self._estimate_n = max(16, int(round(preroll.ESTIMATE_S * fs)))
 
     def _carrier_windows(self):
-        """The frequency ranges the channels take from the capture, in its own frequency axis."""
+        """The frequency ranges around the channels the receiver takes from the capture (in its own
+        frequency axis): its channels' window and the skirt beyond it, where the channel filter still
+        passes more than −100 dB (to 1.5 times the window's edge)."""
         off = 0.0 if self.info.kind == "real" else self.info.center_hz
-        half = self.plan.f_stop_hz
+        half = 1.5 * self.plan.f_stop_hz
         centres = [self.tune_hz]
         if image_coverage(self.design.image_hz(self.tune_hz), self.info.band_hz, self.plan) != "outside":
             centres.append(self.design.image_hz(self.tune_hz))
@@ -188,9 +191,9 @@ class Receiver:
         head = np.concatenate(self._head) if self._head else np.zeros(0)
         self._head = []
         is_complex = self.info.kind != "real"
-        carriers = preroll.estimate_carriers(head[:self._estimate_n], self.info.fs, is_complex,
-                                             self._carrier_windows())
-        history = preroll.carrier_history(carriers, self._pre_n, self.info.fs, is_complex)
+        carriers = preroll.estimate_carriers(head[:self._estimate_n], self.info.fs, is_complex)
+        history = preroll.carrier_history(carriers, self._pre_n, self.info.fs, is_complex,
+                                          near_hz=self._carrier_windows())
         dtype = np.complex64 if is_complex else np.float32
         out = [self._feed(history.astype(dtype))]
         if len(head):

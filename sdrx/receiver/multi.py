@@ -1,0 +1,344 @@
+"""Many stations of one capture in one pass: a shared channelizer, each station's own IF, AGC and audio.
+
+A :class:`MultiReceiver` binds a list of (design, tuning) pairs to one
+capture. Every station is an ordinary :class:`~sdrx.receiver.Receiver`
+(fast path): its checks, warnings, LO plan, IF stages, back end (AGC,
+detector, audio) and statistics are the receiver's own. What is shared is
+the expensive front: the capture is read once, and one
+:class:`~sdrx.dsp.channelbank.ChannelBank` per channel rate cuts every
+station's wanted and image channels from the same FFT of each input
+segment, with array operations over all channels at once. Each station's
+channels are then combined and filtered by its IF stages exactly as its own
+front end would (``FastFrontEnd._combine``).
+
+The clean start (:mod:`sdrx.receiver.preroll`) is shared too: the bank runs
+one pre-roll, the carriers found near *every* station's channels continued
+backwards for the longest of the stations' pre-rolls, and each station takes
+the bank's output from the start of its own pre-roll. A station's pre-roll
+therefore also holds the carriers beyond its own channels' windows
+(> 48 kHz away), which its channels pass at −60 dB or less and its IF
+stages at −100 dB or less, and starts from a bank already running rather
+than from rest. After the pre-roll the station's audio equals ``sdrx
+receive`` of that station with the same chain to float rounding (tested:
+more than 100 dB below the signal; a single station alone is identical).
+
+Where the work goes, per station (measured in ``make bench``): the
+channelizer's share (two channels, wanted and image), the IF stages (a
+complex IIR per station), and the back end (AGC, detector, audio filters,
+resampler) run once per station by :meth:`MultiReceiver._back_ends`. That
+method is the seam where a back end vectorised across stations can slot in.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Sequence
+
+import numpy as np
+
+from ..dsp.channelbank import ChannelBank
+from .receiver import Receiver
+
+__all__ = ["MultiReceiver", "StationReceiver", "BACK_END_THREADS"]
+
+BACK_END_THREADS = 2   # this machine's cores; the back ends of many stations share them
+
+
+class _BankedFront:
+    """A station's fast front end whose channels come from a shared bank.
+
+    Holds the station's own :class:`FastFrontEnd` (its tables, combination
+    of wanted and image, IF stages and their state); ``flush`` returns the
+    tail the bank computed for this station.
+    """
+
+    def __init__(self, front):
+        self.front = front
+        self.tail = np.zeros(0, complex)
+
+    def combine(self, outs) -> np.ndarray:
+        """The station's channels (its own, then its monitor's) -> IF output, as its front end would."""
+        return self.front._split(outs)
+
+    def flush(self) -> np.ndarray:
+        return self.tail
+
+
+class StationReceiver(Receiver):
+    """One station of a :class:`MultiReceiver`: a fast-path Receiver fed its IF output from outside.
+
+    Parameters
+    ----------
+    design, info, tune_hz, first_sample
+        As for :class:`~sdrx.receiver.Receiver` (the fast path).
+    """
+
+    def __init__(self, design, info, tune_hz: float, first_sample: int = 0):
+        super().__init__(design, info, tune_hz, path="fast", first_sample=first_sample, thermal_noise=False)
+        self.banked = _BankedFront(self.front)
+        self.front = self.banked
+        self._started = True          # the MultiReceiver runs the pre-roll for every station
+        self._skip_ch = 0             # bank output before this station's own pre-roll starts
+
+    def feed(self, n_in: int, u: np.ndarray) -> np.ndarray:
+        """Account for ``n_in`` capture samples whose IF output is ``u``; return the audio completed."""
+        self._n_in += n_in
+        return self._out(self._back(u))
+
+    def finish(self, tail_u: np.ndarray) -> np.ndarray:
+        """End of input: the IF output's tail in, the remaining audio out (as :meth:`Receiver.flush`)."""
+        self.banked.tail = tail_u
+        return self.flush()
+
+    def restart_statistics(self) -> None:
+        """Forget the AGC gain range seen so far (a segment's statistics start after its overlap)."""
+        self.backend.agc.gain_min_db = math.inf
+        self.backend.agc.gain_max_db = -math.inf
+
+
+class _Group:
+    """Stations sharing one channel plan, and the bank that serves them."""
+
+    def __init__(self, members, info, first_sample, preroll_n):
+        self.members = members                       # indices into MultiReceiver.stations
+        self.rows = []                               # each member's rows in the bank
+        tables = []
+        for rx in members:
+            fe = rx.banked.front
+            self.rows.append(list(range(len(tables), len(tables) + len(fe.channelizer.tables))))
+            tables.extend(fe.channelizer.tables)
+        first = members[0].banked.front
+        self.bank = ChannelBank(first.plan, info.kind == "iq", tables, first_sample=first_sample - preroll_n,
+                                dtype=first.channelizer.dtype)
+
+    def front(self, block) -> list:
+        y = self.bank.process(block)
+        return [rx.banked.combine(self._own(rx, [y[r] for r in rows])) for rx, rows in zip(self.members, self.rows)]
+
+    @staticmethod
+    def _own(rx, outs) -> list:
+        """Leave out the bank's output before this station's pre-roll starts."""
+        if rx._skip_ch and len(outs[0]):
+            k = min(rx._skip_ch, len(outs[0]))
+            rx._skip_ch -= k
+            outs = [o[k:] for o in outs]
+        return outs
+
+    def front_tail(self) -> list:
+        # as FastFrontEnd.flush: P zeros through the channels, then the bank's own flush
+        a = self.bank.process(np.zeros(self.bank.plan.overlap, self.bank.dtype))
+        b = self.bank.flush()
+        return [np.concatenate([rx.banked.combine([a[r] for r in rows]), rx.banked.combine([b[r] for r in rows])])
+                for rx, rows in zip(self.members, self.rows)]
+
+
+class MultiReceiver:
+    """Stateful receiver of many stations of one capture: capture samples in, each station's audio out.
+
+    Parameters
+    ----------
+    stations : sequence of (ChainDesign, float)
+        Each station's chain design and tuning (carrier frequency, Hz).
+    info : CaptureInfo or similar
+        As for :class:`~sdrx.receiver.Receiver`.
+    first_sample : int
+        Absolute index of the first sample fed (an excerpt or a segment keeps
+        the whole capture's oscillator phases and AGC grid).
+
+    Raises
+    ------
+    ParameterError
+        From any station's :class:`~sdrx.receiver.Receiver` (tuning outside
+        the capture, LO at or below 0 Hz).
+
+    Notes
+    -----
+    The front end (channel bank and IF stages) of each block runs in a worker
+    thread while the back ends work on the previous block, as in the
+    single-station fast path, so the audio returned lags by one block;
+    :meth:`flush` returns the rest. Output does not depend on the block size
+    or the threading.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from sdrx.capture.meta import CaptureInfo
+    >>> from sdrx.chain import design_chain
+    >>> from pathlib import Path
+    >>> info = CaptureInfo(Path("x"), Path("x"), 480e3, 1.0e6, "iq", "cf32_le", 48000)
+    >>> d = design_chain("medium")
+    >>> mr = MultiReceiver([(d, 0.95e6), (d, 1.05e6)], info)
+    >>> n = np.arange(48000)
+    >>> x = (0.1 * np.exp(2j * np.pi * 50e3 * n / 480e3)).astype(np.complex64)
+    >>> out = [np.concatenate([a, b]) for a, b in zip(mr.process(x), mr.flush())]
+    >>> [len(a) for a in out]
+    [4800, 4800]
+    """
+
+    def __init__(self, stations: Sequence, info, first_sample: int = 0):
+        self.info = info
+        self.first_sample = int(first_sample)
+        self.stations = [StationReceiver(d, info, tune, first_sample=first_sample) for d, tune in stations]
+        self.noise = _shared_noise(self.stations, info)
+        # one pre-roll for all: the longest any station needs; each station starts on it at its own
+        from .preroll import preroll_samples
+
+        rates = sorted({r for rx in self.stations for r in (rx.fs_ch, rx.audio_fs)})
+        hop = math.lcm(*{rx.plan.hop for rx in self.stations})
+        self.preroll_n = preroll_samples(max(rx._pre_n for rx in self.stations) / info.fs, info.fs, *rates,
+                                         multiple_of=hop)
+        for rx in self.stations:
+            rx._skip_ch = int(round((self.preroll_n - rx._pre_n) * rx.fs_ch / info.fs))
+        self._head, self._head_n, self._started = [], 0, False
+        self._estimate_n = self.stations[0]._estimate_n
+        by_rate: dict = {}
+        for rx in self.stations:
+            by_rate.setdefault(rx.fs_ch, []).append(rx)
+        self.groups = [_Group(m, info, first_sample, self.preroll_n) for m in by_rate.values()]
+        self._order = [self.stations.index(rx) for g in self.groups for rx in g.members]
+        self._pool = None
+        self._back_pool = None
+        self._pending = None      # (n_in, [u per station]) of the previous block
+        self._flushed = False
+        self._mark = None         # capture sample at which the statistics restart
+        self._n_u = [0] * len(self.stations)
+        self._n_fed = 0
+
+    def restart_statistics_at(self, sample: int) -> None:
+        """Restart every station's AGC gain range at this absolute capture sample (a segment's start)."""
+        self._mark = int(sample)
+
+    def _front(self, block) -> list:
+        us = [u for g in self.groups for u in g.front(block)]
+        return self._in_order(us)
+
+    def _front_tail(self) -> list:
+        return self._in_order([u for g in self.groups for u in g.front_tail()])
+
+    def _in_order(self, us) -> list:
+        out = [None] * len(us)
+        for k, i in enumerate(self._order):
+            out[i] = us[k]
+        return out
+
+    def _back_ends(self, n_in: int, us) -> list:
+        """Each station's back end on its IF output: the seam for a back end vectorised across stations.
+
+        Stations are independent, so they run on a small pool of threads (numpy and scipy release the
+        interpreter in their array loops); each station's output does not depend on the order.
+        """
+        if len(us) < 2:
+            return [self._feed(i, n_in, u) for i, u in enumerate(us)]
+        if self._back_pool is None:
+            from concurrent.futures import ThreadPoolExecutor
+
+            self._back_pool = ThreadPoolExecutor(max_workers=BACK_END_THREADS, thread_name_prefix="sdrx-band-back")
+        return list(self._back_pool.map(lambda i: self._feed(i, n_in, us[i]), range(len(us))))
+
+    def _feed(self, i: int, n_in: int, u) -> np.ndarray:
+        rx = self.stations[i]
+        k = self._split(i, len(u))
+        if k is None:
+            self._n_u[i] += len(u)
+            return rx.feed(n_in, u)
+        a = rx.feed(n_in, u[:k])
+        rx.restart_statistics()
+        b = rx.feed(0, u[k:])
+        self._n_u[i] += len(u)
+        return np.concatenate([a, b])
+
+    def _split(self, i: int, n: int):
+        """Where in this chunk the statistics restart (None when not inside it)."""
+        if self._mark is None:
+            return None
+        rx = self.stations[i]
+        k_mark = int(round((self._mark - self.first_sample) * rx.fs_ch / self.info.fs))
+        k = k_mark - self._n_u[i]
+        return k if 0 <= k < n or (k == n == 0) else None
+
+    def process(self, block: np.ndarray) -> list:
+        """Feed capture samples; return each station's audio completed so far (a list of arrays)."""
+        if self._flushed:
+            raise RuntimeError("MultiReceiver already flushed")
+        if self.noise is not None:
+            block = self.noise.add(block, self.first_sample + self._n_fed)
+        self._n_fed += len(block)
+        if not self._started:
+            self._head.append(np.array(block))
+            self._head_n += len(block)
+            if self._head_n < self._estimate_n:
+                return [np.zeros(0) for _ in self.stations]
+            return self._start()
+        return self._process(block, len(block))
+
+    def _start(self) -> list:
+        """The shared pre-roll (the carriers near every station's channels), then the head samples."""
+        from .preroll import carrier_history, estimate_carriers
+
+        self._started = True
+        head = np.concatenate(self._head) if self._head else np.zeros(0, self.stations[0].front.front.channelizer.dtype)
+        self._head = []
+        is_complex = self.info.kind != "real"
+        carriers = estimate_carriers(head[:self._estimate_n], self.info.fs, is_complex)
+        windows = [w for rx in self.stations for w in rx._carrier_windows()]
+        history = carrier_history(carriers, self.preroll_n, self.info.fs, is_complex,
+                                  near_hz=windows).astype(head.dtype)
+        outs = [self._process(history, 0)]
+        if len(head):
+            outs.append(self._process(head, len(head)))
+        return [np.concatenate(parts) for parts in zip(*outs)]
+
+    def _process(self, block: np.ndarray, n_in: int) -> list:
+        if self._pool is None:
+            from concurrent.futures import ThreadPoolExecutor
+
+            self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="sdrx-band-front")
+        fut = self._pool.submit(self._front, block)
+        if self._pending is not None:
+            out = self._back_ends(*self._pending)
+        else:
+            out = [np.zeros(0) for _ in self.stations]
+        self._pending = (n_in, fut.result())
+        return out
+
+    def flush(self) -> list:
+        """End of input: each station's remaining audio (totals are duration × audio rate)."""
+        first = self._start() if not self._started else [np.zeros(0) for _ in self.stations]
+        self._flushed = True
+        head = self._back_ends(*self._pending) if self._pending is not None else [np.zeros(0)] * len(self.stations)
+        head = [np.concatenate([a, b]) for a, b in zip(first, head)]
+        self._pending = None
+        tails = self._front_tail()
+        try:
+            return [np.concatenate([h, rx.finish(t)]) for h, rx, t in zip(head, self.stations, tails)]
+        finally:
+            self.close()
+
+    def close(self) -> None:
+        """Stop the worker thread (also after an error part-way through); idempotent."""
+        for name in ("_pool", "_back_pool"):
+            pool = getattr(self, name)
+            if pool is not None:
+                pool.shutdown(wait=True, cancel_futures=True)
+                setattr(self, name, None)
+        if self.noise is not None:
+            self.noise.close()
+
+
+def _shared_noise(stations, info):
+    """The front ends' thermal noise, added once to the capture: every station's spec must give the
+    same noise (noise figure, full scale, seed), as one recording has one front end."""
+    from ..errors import ParameterError
+    from .receiver import Receiver
+
+    sources = []
+    for rx in stations:
+        fe = rx.design.frontend
+        sources.append((fe.noise_figure_db, rx.full_scale_dbm, fe.seed))
+    if all(s[0] is None for s in sources):
+        return None
+    if len(set(sources)) > 1:
+        raise ParameterError("--chain: the chains' [frontend] noise differs (noise_figure_db, full_scale_dbm, seed); "
+                             "one capture is received through one front end, so give every chain the same")
+    rx = stations[0]
+    return Receiver._thermal_noise(rx, rx.design.frontend, info)
