@@ -38,8 +38,8 @@ def command(captures, out, stations, min_level, chains, spacing, segment, worker
     """Receive every station of each CAPTURE: one WAV per station, a level log and an overview page.
 
     Each capture is read and channelized once; every station's IF stages,
-    AGC, detector and audio run from that one pass, with the same audio as
-    `sdrx receive` of that station. Several captures, and segments of long
+    AGC, detector and audio run from that one pass, with the audio of
+    `sdrx receive` of that station (to float rounding). Several captures, and segments of long
     captures, run in parallel with --workers or --scheduler.
 
     Example:
