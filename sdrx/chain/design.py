@@ -322,6 +322,14 @@ class ChainDesign:
     def audio(self):
         return self.spec.audio
 
+    @property
+    def blanker(self):
+        return self.spec.blanker
+
+    @property
+    def notch(self):
+        return self.spec.notch
+
     def lo_hz(self, tune_hz: float) -> float:
         """LO frequency: tune + IF (high-side) or tune − IF (low-side)."""
         return lo_frequency(tune_hz, self.if_hz, self.injection)
