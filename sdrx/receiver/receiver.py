@@ -13,6 +13,7 @@ import numpy as np
 
 from ..errors import ParameterError
 from ..units import db20, format_frequency
+from ..dsp.blanker import NoiseBlanker
 from ..dsp.channelizer import plan_channelizer
 from ..dsp.detectors import diagonal_clipping_limit_s
 from .backend import Backend
@@ -100,6 +101,9 @@ class Receiver:
             self.warnings.append(
                 f"image channel {format_frequency(design.image_hz(tune_hz))} lies partly outside the capture"
             )
+        # the noise blanker works on the capture samples, ahead of the channelizer (fast) or of the
+        # preselector and mixer (exact): the wideband signal, before any narrow filter
+        self.blanker = NoiseBlanker(design.blanker, info.fs, first_sample) if design.blanker.enabled else None
         if path == "fast":
             self.front = FastFrontEnd(design, self.plan, info.kind, info.center_hz, (lo, hi), tune_hz, first_sample)
         else:
@@ -159,15 +163,21 @@ class Receiver:
             raise RuntimeError("Receiver already flushed")
         self._n_in += len(block)
         if self.path != "fast":
-            return self._out(self._back(self.front.process(block)))
+            return self._out(self._back(self._front(block)))
         if self._pool is None:
             from concurrent.futures import ThreadPoolExecutor
 
             self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="sdrx-front")
-        fut = self._pool.submit(self.front.process, block)
+        fut = self._pool.submit(self._front, block)
         out = self._back(self._pending) if self._pending is not None else np.zeros(0)
         self._pending = fut.result()
         return self._out(out)
+
+    def _front(self, block: np.ndarray) -> np.ndarray:
+        """Capture samples -> IF envelope: the blanker (when on), then the path's front end."""
+        if self.blanker is not None:
+            block = self.blanker.process(block)
+        return self.front.process(block)
 
     def flush(self) -> np.ndarray:
         """End of input: return the remaining audio, so that the total is duration × audio rate."""
@@ -179,6 +189,10 @@ class Receiver:
         if self._pool is not None:
             self._pool.shutdown(wait=True)
             self._pool = None
+        if self.blanker is not None:
+            # the samples the blanker held back (its look-ahead) go through the front end first
+            held = self._out(self._back(self.front.process(self.blanker.flush())))
+            head = np.concatenate([head, held])
         target = int(math.floor(self._n_in * self.audio_fs / self.info.fs + 1e-9))
         # the front end's tail runs past the input (zero padding, so the filters ring down as
         # after a real end of signal); the level statistics count only the input's duration
@@ -242,4 +256,28 @@ class Receiver:
             c = {"mean": None, "min": None, "max": None}
         g = {"min": agc.gain_min_db if math.isfinite(agc.gain_min_db) else None,
              "max": agc.gain_max_db if math.isfinite(agc.gain_max_db) else None}
-        return {"carrier_dbfs": c, "agc_gain_db": g}
+        out = {"carrier_dbfs": c, "agc_gain_db": g}
+        out.update(self.stage_stats())
+        return out
+
+    def stage_stats(self) -> dict:
+        """What the optional stages did, one entry each when it is on: ``blanker`` (pulses blanked,
+        time blanked, over-threshold runs too long to be pulses), ``notch`` (fixed frequencies, tones
+        found by the tracker), ``carrier_loop`` (synchronous detector: locked, frequency offset)."""
+        out = {}
+        nb = self.blanker
+        if nb is not None:
+            out["blanker"] = {"pulses": nb.pulses, "blanked_s": round(nb.blanked / self.info.fs, 6),
+                              "not_blanked": nb.not_blanked}
+        nt = self.backend.notch
+        if nt is not None:
+            out["notch"] = {"frequencies_hz": list(self.design.notch.frequencies_hz), "auto": nt.auto,
+                            "tones": nt.report()}
+        det = self.backend.detector
+        if hasattr(det, "locked"):
+            off = det.offset_hz
+            out["carrier_loop"] = {"locked": bool(det.locked),
+                                   "offset_hz": None if not math.isfinite(off) else round(off, 3),
+                                   "lock_fraction": round(det.lock_intervals / det.intervals, 4) if det.intervals else None,
+                                   "sideband": self.design.detector.sideband}
+        return out
