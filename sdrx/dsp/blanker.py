@@ -108,6 +108,8 @@ class NoiseBlanker:
         self.lookahead = self.half + self.max_gap + self.p + self.ctx + 1
         self.history = self.ctx + self.p + self.half + 1
         self._buf = None
+        self._pend: list = []              # input not yet joined to _buf (cheap appends for small blocks)
+        self._pend_n = 0
         self._buf0 = int(first_sample)     # absolute index of _buf[0]
         self._out = int(first_sample)      # next absolute index to emit
         self.pulses = 0
@@ -119,19 +121,26 @@ class NoiseBlanker:
         """Feed samples; return the blanked samples that are final so far (possibly none)."""
         x = np.asarray(x)
         if self._buf is None:
-            self._buf = x.copy()
-        elif len(x):
-            self._buf = np.concatenate([self._buf, x])
-        end = self._buf0 + len(self._buf)
+            self._buf = x[:0].copy()
+        self._pend.append(x)
+        self._pend_n += len(x)
+        end = self._buf0 + len(self._buf) + self._pend_n
         # whole level segments known, on the absolute grid
         seg_end = (end // self.seg) * self.seg
         limit = seg_end - self.lookahead
         if limit <= self._out:
             return self._buf[:0]
+        self._gather()
         return self._run(seg_end, limit, final=False)
+
+    def _gather(self) -> None:
+        if self._pend:
+            self._buf = np.concatenate([self._buf] + self._pend)
+            self._pend, self._pend_n = [], 0
 
     def flush(self) -> np.ndarray:
         """End of input: return every sample still held."""
+        self._gather()
         if self._buf is None or self._buf0 + len(self._buf) <= self._out:
             return np.zeros(0) if self._buf is None else self._buf[:0]
         end = self._buf0 + len(self._buf)

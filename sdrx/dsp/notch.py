@@ -61,7 +61,7 @@ FLOOR_HZ = 60.0     # the spectrum's floor: its median within this distance of a
 LINK_HZ = 2.0       # a peak continues a track when within this distance of its last frequency
 MISS_FRAMES = 4     # a track survives this many frames without a peak (a tone masked by loud programme)
 LEVEL_STEP_DB = 0.8 # a steady tone's level moves by at most this much from frame to frame (median)
-LEAD_TAUS = 8.0     # a notch that engages is run over this many time constants first
+LEAD_TAUS = 12.0    # a notch that engages is run over this many time constants first (e^-12: 1e-5)
 
 
 def notch_sos(f0_hz: float, width_hz: float, fs: float) -> np.ndarray:
@@ -149,6 +149,8 @@ class HeterodyneNotch:
         self.notches: list = []
         self._started = False
         self._buf = np.zeros(0)
+        self._pend: list = []     # input not yet joined to _buf (cheap appends for small blocks)
+        self._pend_n = 0
         self.tones: list = []
         self.auto = bool(spec.auto)
         if self.auto:
@@ -191,7 +193,8 @@ class HeterodyneNotch:
         if not len(y):
             return y
         for n in self.notches:
-            n.hist = np.concatenate([n.hist, y])[-self.lead:]
+            if self.auto:   # the tracker's notches start up and retune on what they were fed
+                n.hist = np.concatenate([n.hist, y])[-self.lead:]
             y, n.zi = signal.sosfilt(n.sos, y, zi=n.zi)
         return y
 
@@ -201,18 +204,32 @@ class HeterodyneNotch:
         x = np.asarray(x, dtype=float)
         if not len(x):
             return x
-        self._buf = np.concatenate([self._buf, x])
+        if self._started and not self.auto:
+            return self._run(x)
+        self._pend.append(x)
+        self._pend_n += len(x)
+        have = self._buf0 + len(self._buf) + self._pend_n if self.auto else self._pend_n
+        need = self._frame_span(self._frame)[1] if self.auto else self.lead
+        if have < need:
+            return np.zeros(0)
+        self._gather()
         if self.auto:
             return self._advance(final=False)
         return self._advance_fixed(final=False)
 
     def flush(self) -> np.ndarray:
         """End of input: the samples still held (the start-up fit, the tracker's look-ahead)."""
+        self._gather()
         if not len(self._buf) and not self._started:
             return np.zeros(0)
         if self.auto:
             return self._advance(final=True)
         return self._advance_fixed(final=True)
+
+    def _gather(self) -> None:
+        if self._pend:
+            self._buf = np.concatenate([self._buf] + self._pend)
+            self._pend, self._pend_n = [], 0
 
     def _advance_fixed(self, final: bool) -> np.ndarray:
         if not self._started:
@@ -361,6 +378,20 @@ class HeterodyneNotch:
         steady.sort(key=lambda t: t.key)
         return steady[:self.spec.max_tones]
 
+    def _frequency_at(self, t: _Track, seg: int) -> float:
+        """The track's frequency at frame ``seg``: a straight line fitted (least squares) to its peaks
+        within ±steady_s/2, which follows a drifting tone without lag, also at the ends of the track."""
+        k = np.array(t.frames, float)
+        f = np.array(t.freqs)
+        near = np.abs(k - seg) <= self.confirm // 2
+        if near.sum() < 3:
+            near = np.argsort(np.abs(k - seg))[:3]
+        k, f = k[near], f[near]
+        if len(k) < 3 or np.ptp(k) == 0:
+            return float(np.median(f))
+        slope, icpt = np.polyfit(k - seg, f, 1)
+        return float(icpt)
+
     def _level_steady(self, t: _Track, seg: int) -> bool:
         """The track's level around frame ``seg`` moves smoothly: the median change between
         consecutive frames within ±steady_s is at most LEVEL_STEP_DB. A carrier's beat holds its level
@@ -373,8 +404,7 @@ class HeterodyneNotch:
     def _emit(self, seg: int, s0: int, s1: int) -> np.ndarray:
         want = {}
         for t in self._steady_tracks(seg):
-            near = [f for k, f in zip(t.frames, t.freqs) if abs(k - seg) <= self.confirm // 2]
-            want[t.key] = (t, float(np.median(near if near else t.freqs)))
+            want[t.key] = (t, self._frequency_at(t, seg))
         kept = []
         for n in self.notches:
             if n.key < 0 or n.key in want:

@@ -271,8 +271,10 @@ class Receiver:
                               "not_blanked": nb.not_blanked}
         nt = self.backend.notch
         if nt is not None:
+            span = self._n_in / self.info.fs   # the notch also sees the filters' ring-down past the end
+            tones = [dict(t, end_s=min(t["end_s"], round(span, 4))) for t in nt.report()]
             out["notch"] = {"frequencies_hz": list(self.design.notch.frequencies_hz), "auto": nt.auto,
-                            "tones": nt.report()}
+                            "tones": tones}
         det = self.backend.detector
         if hasattr(det, "locked"):
             off = det.offset_hz
