@@ -20,6 +20,7 @@ from sdrx.chain import design_chain
 from sdrx.receiver import Receiver
 from sdrx.synth import parse_scenario, synthesize
 
+from helpers_rx import feed_blocks
 from helpers_score import programme_from_truth, programme_snr_db
 
 __all__ = ["make_capture", "held_gain_db", "receive_audio", "receive_scored", "speech", "carrier"]
@@ -76,10 +77,8 @@ def receive_audio(chain, capture, tune_hz, station="Wanted", *, path="fast", blo
         level_dbfs = next(s for s in truth["stations"] if s["name"] == station)["level_dbfs"]
     level = level_dbfs
     rx = Receiver(design, info, tune_hz, path=path, agc_hold_gain_db=held_gain_db(design, tune_hz, level))
-    if block is None:
-        parts = [rx.process(x)]
-    else:
-        parts = [rx.process(x[i:i + block]) for i in range(0, len(x), block)]
-    parts.append(rx.flush())
-    rx.close()
-    return np.concatenate(parts), rx
+    try:
+        audio = feed_blocks(rx, x, block)
+    finally:
+        rx.close()
+    return audio, rx

@@ -8,6 +8,8 @@ import pytest
 from sdrx.chain.spec import BlankerSpec
 from sdrx.dsp.blanker import AR_ORDER, NoiseBlanker
 
+from helpers_rx import feed_blocks
+
 FS = 240e3
 ON = BlankerSpec(enabled=True)
 
@@ -28,12 +30,7 @@ def _stations(n, rng, k=3):
 
 def _blank(x, spec=ON, block=None, first_sample=0):
     nb = NoiseBlanker(spec, FS, first_sample)
-    if block is None:
-        parts = [nb.process(x)]
-    else:
-        parts = [nb.process(x[i:i + block]) for i in range(0, len(x), block)]
-    parts.append(nb.flush())
-    return np.concatenate(parts), nb
+    return feed_blocks(nb, x, block), nb
 
 
 def test_pulses_are_found_counted_and_filled_as_the_stations_would_have_run_on(rng):

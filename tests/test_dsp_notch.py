@@ -11,6 +11,8 @@ from scipy import optimize, signal
 from sdrx.chain.spec import NotchSpec
 from sdrx.dsp.notch import HeterodyneNotch, notch_sos
 
+from helpers_rx import feed_blocks
+
 FS = 16000.0
 BAND = (80.0, 6000.0)
 
@@ -30,12 +32,7 @@ def _programme(rng, n, rms=0.3):
 
 def _run(spec, x, block=None):
     nt = HeterodyneNotch(spec, FS, BAND)
-    if block is None:
-        parts = [nt.process(x)]
-    else:
-        parts = [nt.process(x[i:i + block]) for i in range(0, len(x), block)]
-    parts.append(nt.flush())
-    return np.concatenate(parts), nt
+    return feed_blocks(nt, x, block), nt
 
 
 def _tone_db(x, f, phase=None):
