@@ -67,3 +67,14 @@ def test_sideband_filter_passes_one_side_and_rejects_the_other():
     db_pass = 20 * np.log10(np.abs(h_pass))
     assert db_pass.max() <= 1e-6 and db_pass.min() >= -SIDEBAND_RIPPLE_DB - 1e-6
     assert 20 * np.log10(np.abs(h_stop)).max() <= -SIDEBAND_REJECTION_DB + 1e-6
+
+
+@pytest.mark.parametrize("sideband", ["lower", "upper"])
+def test_one_sideband_starts_without_a_step(sideband):
+    # a carrier alone from the first sample: the loop starts on its phase and the sideband filter in
+    # its steady state, so the detected output is constant from sample 0 (no start-up transient)
+    from sdrx.dsp.detectors import SynchronousDetector
+
+    u = 0.5 * np.exp(1j * 2.1) * np.ones(4800)
+    y = SynchronousDetector(96000.0, sideband=sideband).process(u)
+    assert np.ptp(y) < 1e-12

@@ -48,8 +48,6 @@ a small Hermitian Toeplitz system per gap.
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 from scipy import linalg
 
@@ -122,14 +120,15 @@ class NoiseBlanker:
         x = np.asarray(x)
         if self._buf is None:
             self._buf = x[:0].copy()
-        self._pend.append(x)
-        self._pend_n += len(x)
-        end = self._buf0 + len(self._buf) + self._pend_n
+        end = self._buf0 + len(self._buf) + self._pend_n + len(x)
         # whole level segments known, on the absolute grid
         seg_end = (end // self.seg) * self.seg
         limit = seg_end - self.lookahead
         if limit <= self._out:
+            self._pend.append(x.copy())   # held: the caller may reuse its array
+            self._pend_n += len(x)
             return self._buf[:0]
+        self._pend.append(x)
         self._gather()
         return self._run(seg_end, limit, final=False)
 

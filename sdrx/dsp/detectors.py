@@ -139,7 +139,8 @@ class SynchronousDetector:
     interval with its prediction and corrects phase and frequency
     (proportional-integral loop filter, damping 0.707). It starts on the
     phase of the first sample (a receiver already tuned to the carrier: no
-    acquisition transient).
+    acquisition transient), and a single sideband's filter starts in its
+    steady state for the first sample's carrier.
 
     Parameters
     ----------
@@ -192,7 +193,7 @@ class SynchronousDetector:
         if sideband != "both":
             side = -1 if (sideband == "lower") != inverted else 1
             self.sos = sideband_sos(fs, band_hz[0], band_hz[1], side)
-            self.zi = np.zeros((self.sos.shape[0], 2), complex)
+            self.zi = None   # set on the first sample: the steady state for the carrier alone
         self._settle = int(math.ceil(LOCK_SETTLE_S * fs / step))
         self._n_int = 0                 # control intervals completed
         self.intervals = 0
@@ -221,10 +222,11 @@ class SynchronousDetector:
                 self.theta = (self.theta + self.omega * step + self.alpha * e) % (2 * math.pi)
                 self.omega += self.beta * e / step
                 self._acc, self._acc_n = 0j, 0
-        if self.sos is None:
+        if self.sos is None or n == 0:
             return z.real
-        if n == 0:
-            return z.real
+        if self.zi is None:
+            # as if the carrier-locked envelope had always been its first value: no start-up step
+            self.zi = signal.sosfilt_zi(self.sos) * z[0]
         zs, self.zi = signal.sosfilt(self.sos, z, zi=self.zi)
         return 2.0 * zs.real
 

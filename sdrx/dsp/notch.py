@@ -8,19 +8,27 @@ the programme as it is:
 
 - ``frequencies``: fixed notches, from the first sample.
 - ``auto``: a tracker finds the tones and follows them. Every hop of
-  ``HOP_S`` it takes a Blackman-Harris-windowed spectrum of ``WINDOW_HOPS`` hops
-  (zero-padded to twice its length) and lists its peaks that stand ``threshold_db``
-  above the median spectrum within ``FLOOR_HZ`` of them, each frequency
-  refined by quadratic interpolation of the log magnitude. Peaks of
-  consecutive frames within ``LINK_HZ`` of each other form a track (the
-  births and continuations of sinusoidal peak tracking). A track is a
-  steady tone once it has lasted ``steady_s``; programme material does not
-  hold a frequency that long (speech glides in pitch from syllable to
-  syllable), a heterodyne does. A steady track is notched over its whole
-  life, from the frame it was born in: the stage looks ahead by the
-  confirmation time (its output lags its input by ``steady_s`` plus the
-  window; :meth:`HeterodyneNotch.flush` returns the rest at the end), so a
-  whistle is removed from its first frame, not one second later.
+  ``HOP_S`` it takes a Blackman-Harris-windowed spectrum of ``WINDOW_HOPS``
+  hops (zero-padded to twice its length) and lists its peaks that stand
+  ``threshold_db`` above the median spectrum within ``FLOOR_HZ`` of them,
+  each frequency refined by quadratic interpolation of the log magnitude.
+  Peaks of consecutive frames within ``LINK_HZ`` of each other form a track
+  (the births, continuations and deaths of sinusoidal peak tracking); a
+  track survives ``MISS_FRAMES`` frames without a peak, where loud programme
+  masks the tone. A track is a steady tone when it has lasted ``steady_s``
+  and its level has moved smoothly (median frame-to-frame change at most
+  ``LEVEL_STEP_DB``): a carrier's beat holds its level or fades slowly,
+  speech glides in pitch from syllable to syllable, and a musical note
+  struck again and again at one pitch jumps up at each stroke and decays.
+  A track at a harmonic of a steady tone is steady too (an envelope detector
+  makes harmonics of a beat, and they fade more deeply than the beat). A
+  steady tone is notched over its whole life, from the frame it was born in
+  (and ``MISS_FRAMES`` either side): the stage looks ahead (its output lags
+  its input by about ``steady_s`` plus the window; :meth:`HeterodyneNotch.flush`
+  returns the rest at the end), so a whistle is removed from its first
+  moment, not seconds later. The notch frequency follows a straight line
+  fitted to the track's peaks within ``steady_s``/2, so a drifting tone is
+  followed without lag.
 
 Each notch is the second-order IIR notch of width ``width`` at −3 dB
 (scipy.signal.iirnotch); the notches run in cascade. A notch that engages
@@ -37,6 +45,9 @@ Notch: H(z) = b·(1 − 2cos ω0·z⁻¹ + z⁻²) / (1 − 2b·cos ω0·z⁻¹ 
 b = 1/(1 + tan(Δω/2)), Δω = 2π·width/fs (Orfanidis, *Introduction to Signal
 Processing*, Prentice-Hall 1996, second-order notch and peak filters in the
 IIR design chapter (from memory); scipy.signal.iirnotch implements it).
+Window: Harris, "On the use of windows for harmonic analysis with the
+discrete Fourier transform", Proc. IEEE 66(1), 1978 (4-term Blackman-Harris,
+sidelobes 92 dB down: a strong whistle's skirts do not pass for tones).
 Peak interpolation: Smith & Serra, "PARSHL: an analysis/synthesis program for
 non-harmonic sounds based on a sinusoidal representation", ICMC 1987.
 Peak tracking with births and deaths: McAulay & Quatieri, "Speech
@@ -206,12 +217,13 @@ class HeterodyneNotch:
             return x
         if self._started and not self.auto:
             return self._run(x)
-        self._pend.append(x)
         self._pend_n += len(x)
         have = self._buf0 + len(self._buf) + self._pend_n if self.auto else self._pend_n
         need = self._frame_span(self._frame)[1] if self.auto else self.lead
         if have < need:
+            self._pend.append(x.copy())   # held: the caller may reuse its array
             return np.zeros(0)
+        self._pend.append(x)
         self._gather()
         if self.auto:
             return self._advance(final=False)
