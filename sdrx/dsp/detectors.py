@@ -24,7 +24,7 @@ __all__ = ["EnvelopeDetector", "DiodeDetector", "SynchronousDetector", "make_det
 
 SIDEBAND_RIPPLE_DB = 0.1       # passband ripple of the sideband filter
 SIDEBAND_REJECTION_DB = 60.0   # its rejection of the other sideband
-LOCK_ERROR_DEG = 30.0          # an interval is in lock when the loop's phase error is within this
+LOCK_ERROR_DEG = 30.0          # an interval is in lock when the loop's phase error is within this (common practice)
 LOCK_FRACTION = 0.9            # and the loop is "locked" when that many intervals (after settling) are
 LOCK_SETTLE_S = 0.05           # intervals before this are left out of the lock statistics
 
@@ -107,9 +107,9 @@ class DiodeDetector:
 def sideband_sos(fs: float, low_hz: float, high_hz: float, side: int) -> np.ndarray:
     """Complex sos passing one sideband, ``low_hz``..``high_hz`` above (side +1) or below (−1) 0 Hz.
 
-    An elliptic low-pass of half-width (high − low)/2, stop edge 2·low further
-    out (so that its stop band begins at −low on the other side of the
-    carrier), moved to the band's centre by z → z·e^{−jω_c} (each section's
+    An elliptic low-pass of half-width (high − low)/2 and stop edge 2·low
+    further out (so that its stop band begins ``low_hz`` on the other side of
+    the carrier), moved to the band's centre by z → z·e^{−jω_c} (each section's
     k-th coefficients times e^{jkω_c}: the frequency-shift property of the
     z-transform; Oppenheim & Schafer, *Discrete-Time Signal Processing*).
     This is the filter method of sideband selection in the carrier-locked
