@@ -11,7 +11,11 @@ that drift of the machine's speed hits all of them alike:
   that the receiver adds the front end's thermal noise at the full 2.4 MS/s
   (the cost of the noise source);
 - the plain whole-file pipeline of ``bench/baseline.py``, on the capture and
-  on one half as long.
+  on one half as long;
+- ``sdrx receive`` fast path with the noise blanker on (``[blanker] enabled``),
+  and, in this process, the blanker stage alone on 2.4 MS/s I/Q with ten
+  stations and 30 pulses/s, and the auto notch alone at the channel rate
+  (CPU seconds per capture second).
 
 - ``sdrx band`` on a capture with a carrier on each of the 117 channels from
   540 to 1700 kHz (every station, ten, one beside ``sdrx receive``), 10 s and
@@ -104,6 +108,41 @@ def make_captures(work: Path, seconds: float, factor: int) -> tuple:
     return short, long_meta, half
 
 
+def stage_costs(seconds: float = 10.0) -> dict:
+    """CPU seconds per capture second of the blanker (2.4 MS/s I/Q) and of the auto notch (96 kHz)."""
+    import numpy as np
+
+    from sdrx.chain.spec import BlankerSpec, NotchSpec
+    from sdrx.dsp.blanker import NoiseBlanker
+    from sdrx.dsp.notch import HeterodyneNotch
+
+    rng = np.random.default_rng(7)
+    fs = 2.4e6
+    n = int(seconds * fs)
+    k = np.arange(n)
+    x = np.zeros(n, np.complex64)
+    for f in rng.uniform(-1.1e6, 1.1e6, 10):
+        x += (0.03 * np.exp(2j * np.pi * (f / fs * k + rng.random()))).astype(np.complex64)
+    x += (1e-4 * (rng.standard_normal(n) + 1j * rng.standard_normal(n))).astype(np.complex64)
+    x[rng.integers(0, n, int(30 * seconds))] += 1.0
+    nb = NoiseBlanker(BlankerSpec(enabled=True), fs)
+    t0 = time.process_time()
+    for i in range(0, n, 1 << 20):
+        nb.process(x[i:i + (1 << 20)])
+    nb.flush()
+    blank = (time.process_time() - t0) / seconds
+    fa = 96000.0
+    m = int(seconds * fa)
+    d = 0.5 + 0.1 * rng.standard_normal(m) + 0.2 * np.cos(2 * np.pi * 1500.0 * np.arange(m) / fa)
+    nt = HeterodyneNotch(NotchSpec(auto=True), fa, (80.0, 6750.0))
+    t0 = time.process_time()
+    for i in range(0, m, 1 << 16):
+        nt.process(d[i:i + (1 << 16)])
+    nt.flush()
+    notch = (time.process_time() - t0) / seconds
+    return {"blanker": blank, "pulses": nb.pulses, "notch": notch}
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--seconds", type=float, default=20.0, help="length of the short capture (s)")
@@ -130,6 +169,8 @@ def main(argv=None) -> int:
         sdrx = [sys.executable, "-m", "sdrx", "receive", "--tune", "1M", "--quiet", "--force"]
         noisy = work / "noisy.toml"
         noisy.write_text(NOISY_CHAIN)
+        nb_chain = work / "blanker.toml"
+        nb_chain.write_text("[blanker]\nenabled = true\n")
         cmds = {
             "fast_noise": sdrx + [str(short), "--chain", str(noisy), "-o", str(work / "fast_noise.wav")],
             "exact_noise": sdrx + [str(short), "--chain", str(noisy), "--path", "exact",
@@ -139,6 +180,7 @@ def main(argv=None) -> int:
             "baseline": [sys.executable, str(HERE / "baseline.py"), str(short), "1e6", str(work / "base.wav")],
             "fast_long": sdrx + [str(long_), "-o", str(work / "fast_long.wav")],
             "baseline_half": [sys.executable, str(HERE / "baseline.py"), str(half), "1e6", str(work / "base_half.wav")],
+            "fast_blanker": sdrx + [str(short), "--chain", str(nb_chain), "-o", str(work / "fast_nb.wav")],
         }
         res = {k: [] for k in cmds}
         timed(cmds["fast"])  # warm-up: page cache, imports
@@ -167,6 +209,7 @@ def main(argv=None) -> int:
             ("exact path, with thermal noise", "exact_noise", dur, ""),
             ("plain whole-file pipeline", "baseline", dur, ""),
             (f"fast path, capture x{args.factor}", "fast_long", dur * args.factor, "peak MB within 10 % of fast"),
+            ("fast path, noise blanker on", "fast_blanker", dur, ""),
         ]
         for label, k, d, target in rows:
             w, m = med[k]
@@ -186,6 +229,12 @@ def main(argv=None) -> int:
         print(f"steady-state speed, fast path / plain:      {steady / base_steady:6.1f}x   target >= 10x")
         if args.band_runs:
             bench_band(work, args.band_runs)
+        extra_nb = statistics.median((b[0] - f[0]) / dur for b, f in zip(res["fast_blanker"], res["fast"]))
+        print(f"noise blanker, extra wall per capture s:    {extra_nb:6.3f} s (it runs in the front-end thread)")
+        costs = stage_costs()
+        print(f"noise blanker alone, 2.4 MS/s I/Q:          {costs['blanker']:6.3f} CPU s per capture s "
+              f"({costs['pulses']} pulses blanked in 10 s)")
+        print(f"auto notch alone, 96 kHz channel rate:      {costs['notch']:6.3f} CPU s per capture s")
     finally:
         if args.keep is None:
             shutil.rmtree(work, ignore_errors=True)

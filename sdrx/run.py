@@ -228,6 +228,7 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
         "corrections": plan.to_json(),
         "warnings": list(plan.warnings) + list(rx.warnings),
     }
+    summary.update(rx.stage_stats())   # blanker / notch / carrier_loop, each when that stage is on
     if path == "exact":
         summary["if_rate_hz"] = rx.front.fs_if
     if clipped and float_output:

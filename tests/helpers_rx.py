@@ -33,6 +33,7 @@ __all__ = [
     "sinad_db",
     "thd",
     "find_crossing",
+    "feed_blocks",
 ]
 
 TWO_PI = 2.0 * math.pi
@@ -147,3 +148,13 @@ def find_crossing(func, target: float, a: float, b: float, *, xtol: float, maxit
         if abs(b - a) < xtol:
             break
     return b - fb * (b - a) / (fb - fa)
+
+
+def feed_blocks(stage, x, block=None) -> np.ndarray:
+    """Run a streaming stage (``process`` then ``flush``) over x, whole or in blocks of ``block``."""
+    if block is None:
+        parts = [stage.process(x)]
+    else:
+        parts = [stage.process(x[i:i + block]) for i in range(0, len(x), block)]
+    parts.append(stage.flush())
+    return np.concatenate(parts)

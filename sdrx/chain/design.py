@@ -329,6 +329,14 @@ class ChainDesign:
         """The spec's [frontend]: full scale in dBm and noise figure (each None when absent)."""
         return self.spec.frontend
 
+    @property
+    def blanker(self):
+        return self.spec.blanker
+
+    @property
+    def notch(self):
+        return self.spec.notch
+
     def lo_hz(self, tune_hz: float) -> float:
         """LO frequency: tune + IF (high-side) or tune − IF (low-side)."""
         return lo_frequency(tune_hz, self.if_hz, self.injection)

@@ -31,6 +31,8 @@ __all__ = [
     "DetectorSpec",
     "AudioSpec",
     "FrontendSpec",
+    "BlankerSpec",
+    "NotchSpec",
     "ChainSpec",
     "parse_spec",
     "load_chain",
@@ -51,6 +53,7 @@ RESPONSES = ("butterworth", "chebyshev", "elliptic", "bessel", "single_tuned", "
 PROTOTYPE_RESPONSES = ("butterworth", "chebyshev", "elliptic", "bessel")
 DETECTOR_KINDS = ("envelope", "diode", "synchronous")
 INJECTIONS = ("high", "low")
+SIDEBANDS = ("both", "lower", "upper")
 
 
 @dataclass(frozen=True)
@@ -109,6 +112,7 @@ class DetectorSpec:
     kind: str = "envelope"
     rc_us: float = 100.0
     pll_bandwidth_hz: float = 50.0
+    sideband: str = "both"
 
 
 @dataclass(frozen=True)
@@ -195,6 +199,32 @@ def check_noise_figure_db(value: float, name: str = "--noise-figure") -> float:
     return float(value)
 
 
+@dataclass(frozen=True)
+class BlankerSpec:
+    """Noise blanker on the wideband signal, ahead of the IF filters (off by default)."""
+
+    enabled: bool = False
+    threshold_db: float = 15.0   # a pulse stands this far above the running level (median |x|²)
+    width_us: float = 10.0       # blanked around each pulse sample, centred
+    level_ms: float = 1.0        # the running level's segments
+
+
+@dataclass(frozen=True)
+class NotchSpec:
+    """Heterodyne notch in the audio after the detector (off unless auto or frequencies)."""
+
+    auto: bool = False
+    frequencies_hz: tuple = ()
+    width_hz: float = 40.0       # −3 dB width of each notch
+    threshold_db: float = 20.0   # auto: a tone stands this far above the spectrum around it
+    steady_s: float = 2.0        # auto: and holds its frequency (and a smooth level) this long
+    max_tones: int = 8           # auto: most tones notched at once
+
+    @property
+    def enabled(self) -> bool:
+        return self.auto or bool(self.frequencies_hz)
+
+
 def _default_stages():
     return (
         IfStageSpec(response="butterworth", order=2, bandwidth_hz=9e3, gain_db=30.0, agc=True),
@@ -218,6 +248,8 @@ class ChainSpec:
     audio: AudioSpec = field(default_factory=AudioSpec)
     source: str = "<defaults>"
     frontend: FrontendSpec = field(default_factory=FrontendSpec)
+    blanker: BlankerSpec = field(default_factory=BlankerSpec)
+    notch: NotchSpec = field(default_factory=NotchSpec)
 
 
 # key name in TOML -> (field name, kind)
@@ -233,6 +265,8 @@ _TOP_KEYS = {
     "detector": None,
     "audio": None,
     "frontend": None,
+    "blanker": None,
+    "notch": None,
 }
 _PRESELECTOR_KEYS = {
     "kind": ("kind", PRESELECTOR_KINDS),
@@ -271,6 +305,7 @@ _DETECTOR_KEYS = {
     "kind": ("kind", DETECTOR_KINDS),
     "rc_us": ("rc_us", "posfloat"),
     "pll_bandwidth": ("pll_bandwidth_hz", "freq"),
+    "sideband": ("sideband", SIDEBANDS),
 }
 _AUDIO_KEYS = {
     "rate": ("rate_hz", "freq"),
@@ -288,6 +323,65 @@ _FRONTEND_KEYS = {
 }
 
 
+_BLANKER_KEYS = {
+    "enabled": ("enabled", "bool"),
+    "threshold_db": ("threshold_db", "posfloat"),
+    "width_us": ("width_us", "posfloat"),
+    "level_ms": ("level_ms", "posfloat"),
+}
+
+
+def _frequency_list(value: Any, path: str) -> tuple:
+    if not isinstance(value, list):
+        raise ParameterError(f"{path}: expected a list of frequencies such as [\"1.5k\", 3000], got {value!r}")
+    out = []
+    for i, v in enumerate(value):
+        hz = parse_frequency(v, f"{path}[{i}]")
+        if hz <= 0:
+            raise ParameterError(f"{path}[{i}]: must be above 0 Hz, got {v!r}")
+        out.append(hz)
+    return tuple(out)
+
+
+def _whole_number(value: Any, path: str) -> int:
+    if isinstance(value, bool) or not isinstance(value, int):
+        raise ParameterError(f"{path}: expected a whole number, got {value!r}")
+    return value
+
+
+_NOTCH_KEYS = {
+    "auto": ("auto", "bool"),
+    "frequencies": ("frequencies_hz", _frequency_list),
+    "width": ("width_hz", "freq"),
+    "threshold_db": ("threshold_db", "posfloat"),
+    "steady_s": ("steady_s", "posfloat"),
+    "max_tones": ("max_tones", _whole_number),
+}
+
+# ranges of the blanker's and the notch's keys: (low, high) inclusive, with the unit for the message
+_BLANKER_RANGES = {"threshold_db": (3.0, 60.0, "dB"), "width_us": (0.1, 1000.0, "us"), "level_ms": (0.05, 100.0, "ms")}
+_NOTCH_RANGES = {"width": (1.0, 500.0, "Hz"), "threshold_db": (6.0, 60.0, "dB"), "steady_s": (0.2, 30.0, "s"),
+                 "max_tones": (1, 16, "")}
+
+
+def _check_ranges(obj, keys: Mapping, ranges: Mapping, where: str) -> None:
+    """One-line errors for keys outside their range, naming the key, the value and the limits."""
+    for key, (lo, hi, unit) in ranges.items():
+        v = getattr(obj, keys[key][0])
+        if not lo <= v <= hi:
+            u = f" {unit}" if unit else ""
+            raise ParameterError(f"{where}.{key}: {v:g}{u} is outside {lo:g} to {hi:g}{u}")
+
+
+def _check_notch(notch: NotchSpec, audio: AudioSpec) -> None:
+    _check_ranges(notch, _NOTCH_KEYS, _NOTCH_RANGES, "notch")
+    for i, f in enumerate(notch.frequencies_hz):
+        if f >= audio.rate_hz / 2:
+            raise ParameterError(
+                f"notch.frequencies[{i}]: {format_frequency(f)} must be below half the audio rate ({format_frequency(audio.rate_hz / 2)})"
+            )
+
+
 def _check_keys(table: Mapping, allowed: Mapping, where: str) -> None:
     for key in table:
         if key not in allowed:
@@ -300,6 +394,8 @@ def _check_keys(table: Mapping, allowed: Mapping, where: str) -> None:
 
 
 def _convert(value: Any, kind, path: str):
+    if callable(kind):
+        return kind(value, path)
     if isinstance(kind, tuple):
         if not isinstance(value, str) or value not in kind:
             raise ParameterError(f"{path}: {value!r} is not one of {', '.join(kind)}")
@@ -473,6 +569,14 @@ def parse_spec(raw: Mapping, source: str = "<spec>", default_name: str | None = 
     frontend = _build(FrontendSpec, _table(raw, "frontend"), _FRONTEND_KEYS, "frontend")
     if frontend.noise_figure_db is not None:
         check_noise_figure_db(frontend.noise_figure_db, "frontend.noise_figure_db")
+    if detector.sideband != "both" and detector.kind != "synchronous":
+        raise ParameterError(
+            f"detector.sideband: {detector.sideband!r} needs kind = \"synchronous\" (kind is {detector.kind!r})"
+        )
+    blanker = _build(BlankerSpec, _table(raw, "blanker"), _BLANKER_KEYS, "blanker")
+    _check_ranges(blanker, _BLANKER_KEYS, _BLANKER_RANGES, "blanker")
+    notch = _build(NotchSpec, _table(raw, "notch"), _NOTCH_KEYS, "notch")
+    _check_notch(notch, audio)
     name = top.get("name", default_name or "custom")
     return ChainSpec(
         name=name,
@@ -487,6 +591,8 @@ def parse_spec(raw: Mapping, source: str = "<spec>", default_name: str | None = 
         audio=audio,
         source=source,
         frontend=frontend,
+        blanker=blanker,
+        notch=notch,
     )
 
 
@@ -583,6 +689,8 @@ def spec_to_dict(spec: ChainSpec) -> dict:
         "agc": inv(spec.agc, _AGC_KEYS),
         "detector": inv(spec.detector, _DETECTOR_KEYS),
         "audio": inv(spec.audio, _AUDIO_KEYS),
+        "blanker": inv(spec.blanker, _BLANKER_KEYS),
+        "notch": {**inv(spec.notch, _NOTCH_KEYS), "frequencies": list(spec.notch.frequencies_hz)},
     }
     # [frontend] only when the spec sets it (its keys are optional; absent = no absolute scale, no noise)
     if spec.frontend != FrontendSpec():

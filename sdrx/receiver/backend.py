@@ -13,6 +13,7 @@ from scipy import signal
 
 from ..dsp.agc import Agc
 from ..dsp.detectors import make_detector
+from ..dsp.notch import make_notch
 from ..dsp.resample import RationalResampler
 
 __all__ = ["Backend", "LevelMeter", "AGC_STEP"]
@@ -93,7 +94,8 @@ class Backend:
         self.fs_ch = fs_ch
         self.agc = Agc(design.agc, fs_ch, design.fixed_gain_db, design.agc_stage_gain_db, agc_hold_gain_db,
                        step=AGC_STEP, grid_offset=first_sample_ch, freeze=freeze_ch, stats_from=skip_ch)
-        self.detector = make_detector(design.detector, fs_ch)
+        self.detector = make_detector(design.detector, fs_ch, inverted=design.injection == "high", audio=design.audio)
+        self.notch = make_notch(design.notch, fs_ch, design.audio)   # None when off
         au = design.audio
         sos_hp = signal.butter(au.highpass_order, au.highpass_hz, btype="highpass", fs=fs_ch, output="sos")
         sos_lp = signal.butter(au.lowpass_order, au.lowpass_hz, btype="lowpass", fs=fs_ch, output="sos")
@@ -125,9 +127,18 @@ class Backend:
         if k > j:
             self.meter.feed(mag[j:k], env[j:k])
         d = self.detector.process(ug, mag=env)
+        if self.notch is not None:
+            d = self.notch.process(d)   # detector -> notch -> audio filters; it may hold samples back
+            if not len(d):
+                return np.zeros(0)
         a, self.zi_audio = signal.sosfilt(self.sos_audio, d, zi=self.zi_audio)
         return self.resampler.process(a * self.audio_gain)
 
     def flush(self) -> np.ndarray:
-        """Audio still inside the resampler's delay line."""
-        return self.resampler.process(np.zeros(self.resampler.delay_in + 1))
+        """Audio still inside the resampler's delay line (and held by the notch's look-ahead)."""
+        head = np.zeros(0)
+        held = self.notch.flush() if self.notch is not None else head
+        if len(held):
+            a, self.zi_audio = signal.sosfilt(self.sos_audio, held, zi=self.zi_audio)
+            head = self.resampler.process(a * self.audio_gain)
+        return np.concatenate([head, self.resampler.process(np.zeros(self.resampler.delay_in + 1))])

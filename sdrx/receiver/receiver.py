@@ -13,8 +13,9 @@ import numpy as np
 
 from ..errors import ParameterError
 from ..units import db20, format_frequency
-from ..dsp.channelizer import Channelizer, plan_channelizer
 from ..dsp.agc import settle_window_s
+from ..dsp.blanker import NoiseBlanker
+from ..dsp.channelizer import Channelizer, plan_channelizer
 from ..dsp.detectors import diagonal_clipping_limit_s
 from . import preroll
 from .backend import AGC_STEP, Backend
@@ -122,6 +123,9 @@ class Receiver:
 
             self._if_rate = resolve_if_rate(design, self.plan, info, tune_hz, if_rate_hz)
         self._plan_preroll(first_sample)
+        # the noise blanker works on the capture samples, ahead of the channelizer (fast) or of the
+        # preselector and mixer (exact): the wideband signal, before any narrow filter
+        self.blanker = NoiseBlanker(design.blanker, info.fs, first_sample) if design.blanker.enabled else None
         start = first_sample - self._pre_n      # the front end starts with the pre-roll
         self.monitor = ChannelMonitor(design, tune_hz, cover != "outside",
                                       0.0 if info.kind == "real" else info.center_hz, self.fs_ch, spacing_hz,
@@ -195,7 +199,7 @@ class Receiver:
         history = preroll.carrier_history(carriers, self._pre_n, self.info.fs, is_complex,
                                           near_hz=self._carrier_windows())
         dtype = np.complex64 if is_complex else np.float32
-        out = [self._feed(history.astype(dtype))]
+        out = [self._feed(history.astype(dtype), raw=False)]
         if len(head):
             out.append(self._feed(head))
         return np.concatenate(out)
@@ -259,19 +263,28 @@ class Receiver:
             return self._start() if self._head_n >= self._estimate_n else np.zeros(0)
         return self._feed(block)
 
-    def _feed(self, block: np.ndarray) -> np.ndarray:
-        """Capture samples (or pre-roll) through the front end and the back end."""
+    def _feed(self, block: np.ndarray, raw: bool = True) -> np.ndarray:
+        """Capture samples (``raw``: through the blanker when it is on) or pre-roll (not ``raw``: made of
+        clean carriers, it skips the blanker) through the front end and the back end."""
         if self.path != "fast":
-            self.monitor.feed(self._monitor_ch.process(block))
-            return self._out(self._back(self.front.process(block)))
+            return self._out(self._back(self._front(block, raw)))
         if self._pool is None:
             from concurrent.futures import ThreadPoolExecutor
 
             self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="sdrx-front")
-        fut = self._pool.submit(self.front.process, block)
+        fut = self._pool.submit(self._front, block, raw)
         out = self._back(self._pending) if self._pending is not None else np.zeros(0)
         self._pending = fut.result()
         return self._out(out)
+
+    def _front(self, block: np.ndarray, raw: bool = True) -> np.ndarray:
+        """Capture samples -> IF envelope: the blanker (when on), then the path's front end (and, in the
+        exact path, the monitor's own channelizer)."""
+        if raw and self.blanker is not None:
+            block = self.blanker.process(block)
+        if self._monitor_ch is not None:
+            self.monitor.feed(self._monitor_ch.process(block))
+        return self.front.process(block)
 
     def flush(self) -> np.ndarray:
         """End of input: return the remaining audio, so that the total is duration × audio rate."""
@@ -283,6 +296,9 @@ class Receiver:
         if self._pool is not None:
             self._pool.shutdown(wait=True)
             self._pool = None
+        if self.blanker is not None:
+            # the samples the blanker held back (its look-ahead) go through the front end first
+            head = np.concatenate([head, self._out(self._back(self._front(self.blanker.flush(), raw=False)))])
         if self.noise is not None:
             self.noise.close()
         target = int(math.floor(self._n_in * self.audio_fs / self.info.fs + 1e-9))
@@ -356,4 +372,30 @@ class Receiver:
             c = {"mean": None, "min": None, "max": None}
         g = {"min": agc.gain_min_db if math.isfinite(agc.gain_min_db) else None,
              "max": agc.gain_max_db if math.isfinite(agc.gain_max_db) else None}
-        return {"carrier_dbfs": c, "agc_gain_db": g}
+        out = {"carrier_dbfs": c, "agc_gain_db": g}
+        out.update(self.stage_stats())
+        return out
+
+    def stage_stats(self) -> dict:
+        """What the optional stages did, one entry each when it is on: ``blanker`` (pulses blanked,
+        time blanked, over-threshold runs too long to be pulses), ``notch`` (fixed frequencies, tones
+        found by the tracker), ``carrier_loop`` (synchronous detector: locked, frequency offset)."""
+        out = {}
+        nb = self.blanker
+        if nb is not None:
+            out["blanker"] = {"pulses": nb.pulses, "blanked_s": round(nb.blanked / self.info.fs, 6),
+                              "not_blanked": nb.not_blanked}
+        nt = self.backend.notch
+        if nt is not None:
+            span = self._n_in / self.info.fs   # the notch also sees the filters' ring-down past the end
+            tones = [dict(t, end_s=min(t["end_s"], round(span, 4))) for t in nt.report()]
+            out["notch"] = {"frequencies_hz": list(self.design.notch.frequencies_hz), "auto": nt.auto,
+                            "tones": tones}
+        det = self.backend.detector
+        if hasattr(det, "locked"):
+            off = det.offset_hz
+            out["carrier_loop"] = {"locked": bool(det.locked),
+                                   "offset_hz": None if not math.isfinite(off) else round(off, 3),
+                                   "lock_fraction": round(det.lock_intervals / det.intervals, 4) if det.intervals else None,
+                                   "sideband": self.design.detector.sideband}
+        return out
