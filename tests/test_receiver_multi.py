@@ -132,3 +132,20 @@ def test_statistics_restart_at_the_mark():
 def test_station_outside_the_capture_is_refused():
     with pytest.raises(ParameterError, match="outside the capture's band"):
         MultiReceiver([(design_chain("medium"), 2.0e6)], iq_info(FS, CENTER))
+
+
+def test_the_blanker_runs_once_for_every_station():
+    # the same [blanker] for all stations: one blanker on the capture ahead of the bank, as receive has
+    rng = np.random.default_rng(8)
+    n = int(0.5 * FS)
+    info = iq_info(FS, CENTER)
+    x = am_station(0.93e6, -30, 0.5, 1000, FS, CENTER, n) + complex_noise(rng, 1e-8, n)
+    x[rng.integers(1000, n - 1000, 12)] += 0.5            # impulses, +24 dB over the carrier
+    d = design_chain({"blanker": {"enabled": True}})
+    mr = MultiReceiver([(d, 0.93e6), (d, 1.01e6)], info)
+    out = [np.concatenate([a, b]) for a, b in zip(mr.process(x.astype(np.complex64)), mr.flush())]
+    assert mr.blanker.pulses == 12
+    want, _ = run_receiver(d, info, 0.93e6, x)
+    assert _below_signal_db(out[0], want) < -105.0     # measured -113 dB (the bound: 100 dB)
+    with pytest.raises(ParameterError, match=r"\[blanker\] differ"):
+        MultiReceiver([(d, 0.93e6), (design_chain("medium"), 1.01e6)], info)

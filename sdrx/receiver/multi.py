@@ -78,6 +78,7 @@ class StationReceiver(Receiver):
         self.banked = _BankedFront(self.front)
         self.front = self.banked
         self._started = True          # the MultiReceiver runs the pre-roll for every station
+        self.blanker = None           # and the blanker, once on the capture (MultiReceiver.blanker)
         self._skip_ch = 0             # bank output before this station's own pre-roll starts
 
     def feed(self, n_in: int, u: np.ndarray) -> np.ndarray:
@@ -180,6 +181,7 @@ class MultiReceiver:
         self.first_sample = int(first_sample)
         self.stations = [StationReceiver(d, info, tune, first_sample=first_sample) for d, tune in stations]
         self.noise = _shared_noise(self.stations, info)
+        self.blanker = _shared_blanker(self.stations, info, first_sample)
         # one pre-roll for all: the longest any station needs; each station starts on it at its own
         from .preroll import preroll_samples
 
@@ -189,7 +191,7 @@ class MultiReceiver:
                                          multiple_of=hop)
         for rx in self.stations:
             rx._skip_ch = int(round((self.preroll_n - rx._pre_n) * rx.fs_ch / info.fs))
-        self._head, self._head_n, self._started = [], 0, False
+        self._head, self._head_n, self._head_in, self._started = [], 0, 0, False
         self._estimate_n = self.stations[0]._estimate_n
         by_rate: dict = {}
         for rx in self.stations:
@@ -263,13 +265,17 @@ class MultiReceiver:
         if self.noise is not None:
             block = self.noise.add(block, self.first_sample + self._n_fed)
         self._n_fed += len(block)
+        n_in = len(block)
+        if self.blanker is not None:
+            block = self.blanker.process(block)   # it holds back its look-ahead; the count stays the input's
         if not self._started:
             self._head.append(np.array(block))
             self._head_n += len(block)
+            self._head_in += n_in
             if self._head_n < self._estimate_n:
                 return [np.zeros(0) for _ in self.stations]
             return self._start()
-        return self._process(block, len(block))
+        return self._process(block, n_in)
 
     def _start(self) -> list:
         """The shared pre-roll (the carriers near every station's channels), then the head samples."""
@@ -284,8 +290,8 @@ class MultiReceiver:
         history = carrier_history(carriers, self.preroll_n, self.info.fs, is_complex,
                                   near_hz=windows).astype(head.dtype)
         outs = [self._process(history, 0)]
-        if len(head):
-            outs.append(self._process(head, len(head)))
+        if len(head) or self._head_in:
+            outs.append(self._process(head, self._head_in))
         return [np.concatenate(parts) for parts in zip(*outs)]
 
     def _process(self, block: np.ndarray, n_in: int) -> list:
@@ -304,6 +310,9 @@ class MultiReceiver:
     def flush(self) -> list:
         """End of input: each station's remaining audio (totals are duration × audio rate)."""
         first = self._start() if not self._started else [np.zeros(0) for _ in self.stations]
+        if self.blanker is not None:
+            # the samples the blanker held back (its look-ahead), as Receiver.flush does
+            first = [np.concatenate([a, b]) for a, b in zip(first, self._process(self.blanker.flush(), 0))]
         self._flushed = True
         head = self._back_ends(*self._pending) if self._pending is not None else [np.zeros(0)] * len(self.stations)
         head = [np.concatenate([a, b]) for a, b in zip(first, head)]
@@ -323,6 +332,20 @@ class MultiReceiver:
                 setattr(self, name, None)
         if self.noise is not None:
             self.noise.close()
+
+
+def _shared_blanker(stations, info, first_sample):
+    """The noise blanker, run once on the capture samples: every station's spec must give the same one
+    (its fill does not depend on the tuning, so one blanker serves all)."""
+    from ..dsp.blanker import NoiseBlanker
+    from ..errors import ParameterError
+
+    specs = {rx.design.blanker for rx in stations}
+    if len(specs) > 1:
+        raise ParameterError("--chain: the chains' [blanker] differ; the blanker works on the capture itself, "
+                             "ahead of every station, so give every chain the same")
+    spec = specs.pop()
+    return NoiseBlanker(spec, info.fs, first_sample) if spec.enabled else None
 
 
 def _shared_noise(stations, info):
