@@ -283,3 +283,28 @@ def test_no_carrier_found_is_one_line(tmp_path, capsys):
     assert rc == 2 and err.count("\n") == 1
     assert "the survey found no carrier to receive in" in err and "--stations F,F,..." in err
     assert not (tmp_path / "o").exists()
+
+
+def test_corrections_apply_ahead_of_every_station(tmp_path):
+    """band --correct: one estimate per capture, applied ahead of every station, as receive --correct does."""
+    from sdrx.synth import parse_scenario, synthesize
+
+    sc = parse_scenario({
+        "capture": {"kind": "iq", "rate": "240k", "center": "1M", "datatype": "cf32_le", "seconds": 2.0,
+                    "noise_dbfs_per_hz": -130, "seed": 5},
+        "front_end": {"dc_offset_dbfs": -40, "iq_gain_error_db": 1.0, "iq_phase_error_deg": 3.0,
+                      "clock_error_ppm": 60},
+        "station": [{"name": "Quay", "frequency": "1.05M", "level_dbfs": -30, "depth": 0.5,
+                     "program": {"kind": "tone", "frequency": 1000}},
+                    {"name": "Cape", "frequency": "930k", "level_dbfs": -25, "depth": 0.5,
+                     "program": {"kind": "tone", "frequency": 700}}]})
+    cap = tmp_path / "faulty.sigmf-meta"
+    synthesize(sc, cap)
+    summary = band([cap], tmp_path / "b", stations="1050k,930k", segment_s=0, correct="all", float_output=True)
+    applied = summary["captures"][0]["corrections"]["applied"]
+    assert applied["clock"]["ppm"] == pytest.approx(60.0, abs=2.0)     # the issue's bound: ±2 ppm
+    receive(cap, 1050e3, "medium", tmp_path / "r.wav", correct="all", float_output=True)
+    a, _ = sf.read(tmp_path / "b" / "1050k.wav", dtype="float64")
+    b, _ = sf.read(tmp_path / "r.wav", dtype="float64")
+    assert len(a) == len(b)
+    assert 10 * np.log10(np.sum((a - b) ** 2) / np.sum(b ** 2)) < -100.0

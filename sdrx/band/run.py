@@ -51,6 +51,7 @@ class _Capture:
     first: int
     count: int
     survey: object = None
+    corrections: object = None     # the capture's CorrectionPlan (--correct, --ppm)
     stations: list = None          # [(tune_hz, spec_arg)]
     skipped: list = None           # [{"freq_hz", "reason"}]
     segments: list = None
@@ -65,9 +66,23 @@ class _Capture:
 def _survey_job(job):
     from ..analysis.survey import survey
     from ..capture import open_capture
+    from ..capture.correct import corrected_reader
 
-    path, kwargs, spacing, start, duration = job
-    return survey(open_capture(path, **kwargs), spacing_hz=spacing, start_s=start, duration_s=duration)
+    path, kwargs, plan, spacing, start, duration = job
+    reader = corrected_reader(open_capture(path, **kwargs), plan)
+    return survey(reader, spacing_hz=spacing, start_s=start, duration_s=duration)
+
+
+def _correct(caps, correct, ppm, spacing, start_s, duration_s) -> None:
+    """Each capture's corrections (estimated over its excerpt, as receive does); its reader and excerpt
+    from then on are the corrected capture's."""
+    from ..capture.correct import corrected_reader, plan_corrections
+
+    for c in caps:
+        c.corrections = plan_corrections(c.reader, correct, ppm=ppm, spacing_hz=spacing, start_s=start_s,
+                                         duration_s=duration_s)
+        c.reader = corrected_reader(c.reader, c.corrections)
+        c.first, c.count = c.reader.sample_range(start_s, duration_s)
 
 
 def _open_captures(captures, kwargs, start_s, duration_s) -> list:
@@ -216,7 +231,8 @@ class _Streams:
 
 def band(captures, out_dir, *, stations="all", min_level_dbfs=None, chains=(), spacing_hz="10k", start_s=0.0,
          duration_s=None, segment_s=DEFAULT_SEGMENT_S, workers=None, scheduler=None, float_output: bool = False,
-         force: bool = False, progress=None, datatype=None, fs=None, center_hz=None, work_dir=None) -> dict:
+         force: bool = False, progress=None, datatype=None, fs=None, center_hz=None, work_dir=None,
+         correct=None, ppm=None) -> dict:
     """Receive every station of each capture; write the WAVs, band.json, log.csv and index.html.
 
     Parameters
@@ -253,6 +269,9 @@ def band(captures, out_dir, *, stations="all", min_level_dbfs=None, chains=(), s
     work_dir : str or Path, optional
         Where workers leave segment parts (default: a hidden folder in ``out_dir``);
         shared storage that every worker and this process see under the same path.
+    correct, ppm : optional
+        Capture corrections (``--correct``, ``--ppm``), estimated once per capture over its
+        excerpt and applied ahead of every station (as :func:`sdrx.run.receive` does).
 
     Returns
     -------
@@ -285,8 +304,9 @@ def band(captures, out_dir, *, stations="all", min_level_dbfs=None, chains=(), s
     designs = _designs(choice)
     if work_dir is not None and not Path(work_dir).is_dir():
         raise ParameterError(f"--work-dir {work_dir}: not a folder")
+    _correct(caps, correct, ppm, spacing, start_s, duration_s)
     if freqs is None:
-        jobs = [(str(Path(c.arg).absolute()), kwargs, spacing, start_s, duration_s) for c in caps]
+        jobs = [(str(Path(c.arg).absolute()), kwargs, c.corrections, spacing, start_s, duration_s) for c in caps]
         for c, s in zip(caps, _run(_survey_job, jobs, workers, scheduler)):
             c.survey = s
     for c in caps:
@@ -329,7 +349,8 @@ def _receive_all(caps, kwargs, names, tmp, designs, float_output, workers, sched
         st = tuple(StationJob(f, designs[spec]) for f, spec in c.stations)
         for s in c.segments:
             jobs.append(SegmentJob(c.index, str(Path(c.arg).absolute()), kwargs, st, s, c.first, c.count,
-                                   float_output, c.spectrogram, None if parts_dir is None else str(parts_dir)))
+                                   float_output, c.spectrogram, None if parts_dir is None else str(parts_dir),
+                                   c.corrections))
             weights.append(s.samples)
     streams = _Streams(caps, names, tmp, designs, float_output)
     results = {}
@@ -419,6 +440,7 @@ def _summary(caps, names, designs, results, spacing, segment_s, overlap, float_o
             "capture": c.info.to_json(), "folder": c.folder, "start_s": c.first / c.info.fs,
             "duration_s": c.count / c.info.fs, "segments": len(c.segments),
             "survey": None if c.survey is None else {k: v for k, v in c.survey.to_json().items() if k != "carriers"},
+            "corrections": c.corrections.to_json(),
             "skipped": c.skipped, "spectrogram": c.spectrogram.to_json(), "stations": st_out,
         })
     return {

@@ -24,7 +24,7 @@ from .levels import level_rows
 from .plan import Segment
 
 __all__ = ["StationJob", "SegmentJob", "StationPart", "SegmentResult", "run_segment", "encode_audio",
-           "PartsSink", "SETTLE_S", "part_path", "corrected"]
+           "PartsSink", "SETTLE_S", "part_path"]
 
 SETTLE_S = 0.05        # as the receiver's summary: level statistics start 50 ms into the excerpt
 _PCM16 = parse_datatype("ri16_le")
@@ -66,6 +66,7 @@ class SegmentJob:
     float_output: bool
     spectrogram: object = None
     parts_dir: Optional[str] = None
+    corrections: object = None      # the capture's CorrectionPlan, estimated once by the client
 
 
 @dataclass
@@ -138,17 +139,6 @@ def _audio_samples(n_capture: int, rx) -> int:
                / Fraction(rx.info.fs).limit_denominator(1000))
 
 
-def corrected(blocks, job: SegmentJob):
-    """The place of the capture corrections (DC, I/Q balance, clock) between the reader and the receivers.
-
-    ``sdrx band`` has no ``--correct`` yet, so the blocks pass unchanged. When the corrections exist as a
-    streaming stage, this applies it to the segment's blocks from ``job.segment.warm`` on, on the whole
-    capture's sample grid like the receivers' state; estimates taken over the whole capture (I/Q balance
-    from the whole band's statistics) are made once by the client and travel in the job.
-    """
-    return blocks
-
-
 def _block_size(n_channels: int) -> int:
     # about 64 MB of channel samples per block, whatever the number of stations
     return 1 << 20 if n_channels <= 8 else 1 << 18
@@ -176,7 +166,13 @@ def run_segment(job: SegmentJob, sink=None, progress=None) -> SegmentResult:
     from .spectrogram import SpectrogramAccumulator
 
     seg = job.segment
+    from ..capture.correct import corrected_reader
+
+    # the corrections (estimated once for the capture, over the whole excerpt: the I/Q balance from the
+    # whole band's statistics) stream on the capture's absolute grid, like the receivers' state
     reader = open_capture(job.capture, **job.open_kwargs)
+    if job.corrections is not None:
+        reader = corrected_reader(reader, job.corrections)
     info = reader.info
     fs = info.fs
     mr = MultiReceiver([(s.design, s.tune_hz) for s in job.stations], info, first_sample=seg.warm)
@@ -203,7 +199,7 @@ def run_segment(job: SegmentJob, sink=None, progress=None) -> SegmentResult:
     pos = seg.warm
     try:
         blocks = reader.blocks(_block_size(n_ch), start_s=seg.warm / fs, duration_s=(stop - seg.warm) / fs)
-        for block in _prefetch(corrected(blocks, job)):
+        for block in _prefetch(blocks):
             if spec is not None:
                 spec.feed(block, pos)
             pos += len(block)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from .common import capture_kwargs, capture_options, progress_for
+from .common import capture_kwargs, capture_options, correction_options, progress_for
 
 __all__ = ["command"]
 
@@ -32,15 +32,17 @@ __all__ = ["command"]
 @click.option("--float", "float_output", is_flag=True, help="Write 32-bit float WAVs instead of 16-bit PCM.")
 @click.option("--force", is_flag=True, help="Replace an earlier band run in the output folder.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
+@correction_options
 @capture_options
 def command(captures, out, stations, min_level, chains, spacing, segment, workers, scheduler, work_dir,
-            float_output, force, quiet, datatype, rate, center, start, duration):
+            float_output, force, quiet, correct, ppm, datatype, rate, center, start, duration):
     """Receive every station of each CAPTURE: one WAV per station, a level log and an overview page.
 
     Each capture is read and channelized once; every station's IF stages,
     AGC, detector and audio run from that one pass, with the audio of
     `sdrx receive` of that station (to float rounding). Several captures, and segments of long
-    captures, run in parallel with --workers or --scheduler.
+    captures, run in parallel with --workers or --scheduler. --correct undoes
+    the recorder's faults (estimated once per capture) ahead of every station.
 
     Example:
 
@@ -55,7 +57,7 @@ def command(captures, out, stations, min_level, chains, spacing, segment, worker
         s = band(list(captures), out, stations=stations, min_level_dbfs=min_level, chains=chains, spacing_hz=spacing,
                  start_s=start, duration_s=duration, segment_s=seg, workers=workers, scheduler=scheduler,
                  float_output=float_output, force=force, progress=bar, work_dir=work_dir,
-                 **capture_kwargs(datatype, rate, center))
+                 correct=correct, ppm=ppm, **capture_kwargs(datatype, rate, center))
     finally:
         if bar is not None:
             bar.close()
