@@ -437,23 +437,29 @@ def load_chain(spec) -> ChainSpec:
     if isinstance(spec, Mapping):
         return parse_spec(spec, "<mapping>")
     text = str(spec)
+    shown = text if len(text) <= 80 else text[:77] + "..."
     path = Path(text)
-    if path.suffix.lower() != ".toml" and not path.exists():
-        preset = PRESET_DIR / f"{text}.toml"
-        if not preset.is_file():
-            names = ", ".join(n for n, _ in list_presets())
-            raise ParameterError(f"--chain {text}: no such preset or file (presets: {names})")
-        path = preset
-        default_name = text
-    else:
-        default_name = path.stem
-    if not path.is_file():
-        raise ParameterError(f"{path}: chain spec file not found")
     try:
+        named_file = path.suffix.lower() == ".toml" or path.exists()
+        if not named_file:
+            preset = PRESET_DIR / f"{text}.toml"
+            if not preset.is_file():
+                names = ", ".join(n for n, _ in list_presets())
+                raise ParameterError(f"--chain {shown}: no such preset or file (presets: {names})")
+            path = preset
+            default_name = text
+        else:
+            default_name = path.stem
+        if not path.is_file():
+            raise ParameterError(f"{shown}: chain spec file not found")
         with open(path, "rb") as fh:
             raw = tomllib.load(fh)
     except tomllib.TOMLDecodeError as exc:
         raise ParameterError(f"{path}: not valid TOML ({exc})") from None
+    except UnicodeDecodeError:
+        raise ParameterError(f"{path}: not a TOML text file (not UTF-8)") from None
+    except OSError as exc:
+        raise ParameterError(f"--chain {shown}: {exc.strerror}") from None
     try:
         return parse_spec(raw, str(path), default_name=default_name)
     except ParameterError as exc:

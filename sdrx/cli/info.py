@@ -9,7 +9,7 @@ import click
 from ..analysis.survey import DEFAULT_THRESHOLD_DB, survey
 from ..capture import open_capture
 from ..units import format_frequency
-from .common import capture_kwargs, capture_options, progress_for
+from .common import capture_kwargs, capture_options, SdrxCommand, progress_for
 
 __all__ = ["command", "format_info"]
 
@@ -43,7 +43,7 @@ def format_info(info, result, first: int, count: int) -> str:
     return "\n".join(lines)
 
 
-@click.command("info")
+@click.command("info", cls=SdrxCommand)
 @click.argument("capture", type=click.Path(dir_okay=False, path_type=str))
 @capture_options
 @click.option("--spacing", default="10k", show_default=True, metavar="HZ",

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from .common import capture_options, progress_for
+from .common import capture_options, SdrxCommand, progress_for
 
 __all__ = ["command"]
 
@@ -19,7 +19,7 @@ def _list_chains(ctx, _param, value):
     ctx.exit(0)
 
 
-@click.command("receive")
+@click.command("receive", cls=SdrxCommand)
 @click.argument("capture", type=click.Path(dir_okay=False), required=True)
 @click.option("--tune", required=True, metavar="F", help="Carrier frequency of the station, e.g. 1130k.")
 @click.option("--chain", default="medium", show_default=True, metavar="SPEC|PRESET",

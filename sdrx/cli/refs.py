@@ -4,12 +4,12 @@ from __future__ import annotations
 
 import click
 
-from .common import progress_for
+from .common import SdrxGroup, progress_for
 
 __all__ = ["command"]
 
 
-@click.group("refs")
+@click.group("refs", cls=SdrxGroup)
 def command():
     """Stored references: prove that a chain's output did not drift.
 
