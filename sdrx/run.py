@@ -13,12 +13,11 @@ import json
 import math
 from pathlib import Path
 
-import numpy as np
-
 from .chain import design_chain
 from .errors import OutputError, ParameterError
 from .fileio import atomic_path, check_free_space, check_output, same_file
 from .fileset import OutputSet
+from .limits import MAX_IF_RATE_HZ, MAX_RF_HZ, check_range
 from .receiver import PATHS, Receiver
 from .units import parse_frequency
 
@@ -179,10 +178,12 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
         summary_path = check_output(summary_path, inputs=inputs + [out], force=force, option="--summary")
         if same_file(summary_path, out):
             raise ParameterError(f"--summary {summary_path}: is the output WAV; name another file")
-    tune = parse_frequency(tune_hz, "--tune")
+    tune = check_range(parse_frequency(tune_hz, "--tune"), "--tune", 0, MAX_RF_HZ, low_open=True, unit="Hz")
     design = design_chain(chain)
     first, count = reader.sample_range(start_s, duration_s)
     if_rate = None if if_rate_hz is None else parse_frequency(if_rate_hz, "--if-rate")
+    if if_rate is not None:
+        check_range(if_rate, "--if-rate", 0, MAX_IF_RATE_HZ, low_open=True, unit="Hz")
     if if_rate is not None and path != "exact":
         raise ParameterError("--if-rate: only the exact path has an IF sample rate (add --path exact)")
     rx = Receiver(design, info, tune, path=path, first_sample=first, if_rate_hz=if_rate)

@@ -120,9 +120,9 @@ def test_toml_file_and_units(tmp_path):
     ({"preselector": 3}, r"^preselector: expected a table"),
     ({"if_stage": [{"bandwidth": "1.2M"}]}, r"^if_stage\[1\]\.bandwidth: 1\.2 MHz is wider than twice the IF \(910 kHz\)"),
     ({"if_stage": [{"bandwidth": "910k"}]}, r"^if_stage\[1\]\.bandwidth: 910 kHz is wider than twice the IF"),
-    ({"if_stage": [{"response": "single_tuned", "q": 0}]}, r"^if_stage\[1\]\.q: must be above 0, got 0"),
-    ({"if_stage": [{"response": "single_tuned", "q": -5}]}, r"^if_stage\[1\]\.q: must be above 0, got -5"),
-    ({"preselector": {"q": 0}}, r"^preselector\.q: must be above 0"),
+    ({"if_stage": [{"response": "single_tuned", "q": 0}]}, r"^if_stage\[1\]\.q: 0 must be above 0\.5 and at most 10000"),
+    ({"if_stage": [{"response": "single_tuned", "q": -5}]}, r"^if_stage\[1\]\.q: -5 must be above 0\.5"),
+    ({"preselector": {"q": 0}}, r"^preselector\.q: 0 must be above 0\.5 and at most 1000"),
     ({"agc": {"min_gain_db": 70, "max_gain_db": 60}}, r"^agc\.min_gain_db: 70 is above agc\.max_gain_db \(60\)"),
     ({"mixer": {"gain_error_db": 0.5}}, r"only a quadrature mixer has imbalance"),
 ])

@@ -17,6 +17,7 @@ import numpy as np
 from scipy import stats
 
 from ..errors import CaptureError, ParameterError
+from ..limits import MAX_SPACING_HZ, MAX_SURVEY_BINS, MIN_SPACING_HZ, check_range
 from ..units import parse_frequency
 
 __all__ = ["Carrier", "Survey", "survey", "survey_carriers", "DEFAULT_THRESHOLD_DB"]
@@ -30,6 +31,7 @@ _LOBE = 2                # Hann main lobe half-width, bins
 _DYNAMIC_RANGE_DB = 130.0  # floor never below strongest bin minus this (float32 arithmetic spurs)
 _GUARD = 6               # a line's peak is the highest bin within this many bins either side
 _SEGMENTS_PER_BLOCK = 16
+_BLOCK_SAMPLES = 1 << 22
 
 
 @dataclass(frozen=True)
@@ -156,6 +158,7 @@ def survey(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, threshold_d
     spacing = parse_frequency(spacing_hz, "--spacing")
     if spacing <= 0:
         raise ParameterError(f"--spacing: must be positive, got {spacing_hz!r}")
+    check_range(spacing, "--spacing", MIN_SPACING_HZ, MAX_SPACING_HZ, unit="Hz")
     if spacing >= info.fs / 2:
         raise ParameterError(
             f"--spacing {spacing:g}: must be well below the capture's bandwidth (rate {info.fs:g} Hz)"
@@ -165,6 +168,10 @@ def survey(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, threshold_d
         raise ParameterError(f"threshold_db: must be a positive number of dB, got {threshold_db!r}")
     first, count = reader.sample_range(start_s, duration_s)
     nfft = _choose_nfft(info.fs, spacing, count)
+    if nfft > MAX_SURVEY_BINS:
+        raise ParameterError(
+            f"--spacing {spacing:g}: resolving {spacing:g} Hz channels at the capture rate {info.fs:g} Hz needs a "
+            f"{nfft}-point spectrum; at most {MAX_SURVEY_BINS} (use a wider spacing)")
     if count < nfft:
         raise CaptureError(
             f"{info.path}: excerpt of {count} samples is too short to survey {spacing:g} Hz channels "
@@ -177,7 +184,8 @@ def survey(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, threshold_d
     acc = np.zeros(nfft if is_iq else nfft // 2 + 1, dtype=np.float64)
     segments = 0
     done = 0
-    for block in reader.blocks(nfft * _SEGMENTS_PER_BLOCK, start_s=start_s, duration_s=duration_s):
+    per_block = max(1, min(_SEGMENTS_PER_BLOCK, _BLOCK_SAMPLES // nfft))   # blocks of at most 4 Mi samples
+    for block in reader.blocks(nfft * per_block, start_s=start_s, duration_s=duration_s):
         take = min(block.shape[0], used - done)
         k = take // nfft
         if k > 0:

@@ -35,6 +35,17 @@ def channel_rate(audio_rate_hz: float, fs: float) -> float:
     return float(min(audio_rate_hz * r, fs))
 
 
+def _check_channel_holds_audio(plan, design, info) -> None:
+    """The channel (flat to plan.f_pass_hz) must pass the audio band, else its top is cut silently."""
+    top = design.audio.lowpass_hz
+    if plan.f_pass_hz < top:
+        need = top / (plan.f_pass_hz / plan.fs_ch)
+        raise ParameterError(
+            f"{getattr(info, 'path', 'capture')}: rate {format_frequency(info.fs)} is too low for this chain: its "
+            f"channel is flat only to {format_frequency(plan.f_pass_hz)}, below audio.lowpass {format_frequency(top)}; "
+            f"a capture rate of at least {format_frequency(need)} is needed")
+
+
 class Receiver:
     """Stateful receiver: capture samples in, audio out.
 
@@ -85,6 +96,7 @@ class Receiver:
         fs_ch = channel_rate(design.audio.rate_hz, info.fs)
         self.plan = plan_channelizer(info.fs, fs_ch)
         self.fs_ch = self.plan.fs_ch
+        _check_channel_holds_audio(self.plan, design, info)
         edge = design.audio.lowpass_hz
         if tune_hz - edge < lo or tune_hz + edge > hi:
             self.warnings.append(

@@ -570,7 +570,6 @@ def write_difference(ref_path, new_path, out_path, outputs=None) -> Path:
     >>> sf.read(diff)[0].tolist() == [0.25] * 12
     True
     """
-    import soundfile as sf
 
     out = Path(out_path)
     with _open(ref_path) as fr, _open(new_path) as fn:

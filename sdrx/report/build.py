@@ -19,6 +19,7 @@ import numpy as np
 
 from ..errors import OutputError, ParameterError
 from ..fileio import check_output, write_folder
+from ..limits import MAX_POINTS, MIN_POINTS
 from ..units import format_frequency
 from ..analysis import selectivity as sel
 
@@ -165,8 +166,9 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
     tune, spacing = sel.validate_tuning(design, tune, spacing)
     if path not in ("fast", "exact"):
         raise ParameterError(f"--path {path!r}: choose fast or exact")
-    if not isinstance(points, int) or points < 7:
-        raise ParameterError(f"--points {points!r}: must be a whole number >= 7")
+    if isinstance(points, bool) or not isinstance(points, int) or not MIN_POINTS <= points <= MAX_POINTS:
+        raise ParameterError(f"--points {points!r}: must be a whole number from {MIN_POINTS} to {MAX_POINTS} "
+                             "(each point is a receiver run)")
     reader = None
     if capture is not None:
         from ..capture import open_capture
