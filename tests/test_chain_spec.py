@@ -146,3 +146,28 @@ def test_bad_toml_file_is_named(tmp_path):
     q.write_text("[agc]\nrelease = 300\n")
     with pytest.raises(ParameterError, match=r"typo\.toml: agc\.release: unknown key; did you mean 'release_ms'\?"):
         load_chain(q)
+
+
+def test_one_numbering_of_if_stages():
+    """A validation error and a refs difference name the same stage the same way (from 1, as the report's 'IF 1')."""
+    from sdrx.chain import spec_to_dict
+    from sdrx.refs.runcase import dict_differences
+
+    two = [{"bandwidth": "9k"}, {"response": "single_tuned", "q": 60}]
+    with pytest.raises(ParameterError, match=r"^if_stage\[2\]\.q: 0\.1 must be above 0\.5"):
+        parse_spec({"if_stage": [two[0], {"response": "single_tuned", "q": 0.1}]})
+    a = spec_to_dict(parse_spec({"if_stage": two}))
+    b = spec_to_dict(parse_spec({"if_stage": [two[0], {"response": "single_tuned", "q": 50}]}))
+    assert dict_differences(a, b) == ["if_stage[2].q: 60.0 -> 50.0"]
+
+
+def test_bound_table_covers_every_number():
+    """Every numeric key of every section has both bounds (the pattern new sections follow)."""
+    from sdrx.chain import spec as spec_mod
+
+    tables = [spec_mod._TOP_KEYS, spec_mod._PRESELECTOR_KEYS, spec_mod._MIXER_KEYS, spec_mod._STAGE_KEYS,
+              spec_mod._AGC_KEYS, spec_mod._DETECTOR_KEYS, spec_mod._AUDIO_KEYS]
+    for table in tables:
+        for name, key in table.items():
+            if key is not None and key.kind in ("freq", "int", "float", "db"):
+                assert key.low is not None and key.high is not None, name

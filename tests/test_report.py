@@ -192,3 +192,15 @@ def test_tune_outside_capture(capture):
 
     with pytest.raises(ParameterError, match="outside the band of capture"):
         build_report("medium", 1500e3, capture=capture[0], measure=False)
+
+
+def test_ideal_quadrature_mixer_has_infinite_image_rejection(tmp_path):
+    """No gain or phase error: K2 = (1 - γe^{-jφ})/2 = 0, no image response at all (it was a TypeError
+    drawing the image figure). JSON holds null, the page says infinite, the figure draws no line."""
+    rep = build_report({"mixer": {"kind": "quadrature"}}, 1e6, measure=False)
+    assert rep.data["designed"]["image_rejection_db"] is None
+    written = write_report(rep, tmp_path / "q")
+    page = (tmp_path / "q" / "report.html").read_text()
+    assert "Image rejection: infinite" in page
+    assert {p.name for p in written} >= {"image.png", "report.json"}
+    assert json.loads((tmp_path / "q" / "report.json").read_text())["designed"]["image_rejection_db"] is None

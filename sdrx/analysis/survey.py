@@ -20,9 +20,11 @@ from ..errors import CaptureError, ParameterError
 from ..limits import MAX_SPACING_HZ, MAX_SURVEY_BINS, MIN_SPACING_HZ, check_range
 from ..units import parse_frequency
 
-__all__ = ["Carrier", "Survey", "survey", "survey_carriers", "DEFAULT_THRESHOLD_DB"]
+__all__ = ["Carrier", "Survey", "survey", "survey_carriers", "DEFAULT_THRESHOLD_DB", "DEFAULT_SURVEY_SECONDS"]
 
 DEFAULT_THRESHOLD_DB = 10.0
+#: ``sdrx info`` surveys at most this much of a capture unless --duration asks for more
+DEFAULT_SURVEY_SECONDS = 60.0
 _FALSE_ALARM = 1e-9      # per-bin probability that noise alone passes the threshold
 _BINS_PER_CHANNEL = 64   # target resolution: spacing / 64
 _MIN_BINS_PER_CHANNEL = 8
@@ -74,7 +76,9 @@ class Survey:
     def to_json(self) -> dict:
         return {
             "spacing_hz": float(self.spacing_hz),
-            "noise_floor_dbfs": round(float(self.noise_floor_dbfs), 2),
+            # an all-zero excerpt has no noise floor (-inf dBFS): null
+            "noise_floor_dbfs": (round(float(self.noise_floor_dbfs), 2) if math.isfinite(self.noise_floor_dbfs)
+                                 else None),
             "rbw_hz": float(self.rbw_hz),
             "nfft": int(self.nfft),
             "segments": int(self.segments),
@@ -186,7 +190,7 @@ def survey(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, threshold_d
     done = 0
     per_block = max(1, min(_SEGMENTS_PER_BLOCK, _BLOCK_SAMPLES // nfft))   # blocks of at most 4 Mi samples
     for block in reader.blocks(nfft * per_block, start_s=start_s, duration_s=duration_s):
-        take = min(block.shape[0], used - done)
+        take = max(0, min(block.shape[0], used - done))
         k = take // nfft
         if k > 0:
             seg = block[: k * nfft].reshape(k, nfft) * window
@@ -196,8 +200,8 @@ def survey(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, threshold_d
         done += block.shape[0]
         if progress is not None:
             progress(min(done, count), count)
-        if done >= used:
-            break
+        # the rest of the excerpt (less than a segment is unused) is still read, so that a reader
+        # that checks the file's hash on a whole read (SigMF core:sha512) sees every byte
     power = acc * (norm / segments)
     if is_iq:
         power = np.fft.fftshift(power)

@@ -36,7 +36,8 @@ class CaptureReader:
 
     Subclass hooks: ``_open()`` returns an object with ``close()``;
     ``_seek(handle, first)`` positions it; ``_read(handle, count)`` returns
-    ``count`` converted samples (float32 or complex64).
+    ``count`` converted samples (float32 or complex64); ``_open_excerpt``
+    and ``_finish`` may check what a whole read saw (a hash).
     """
 
     def __init__(self, info: CaptureInfo, *, may_hold_nonfinite: bool):
@@ -131,7 +132,7 @@ class CaptureReader:
     def _iterate(self, block_size: int, first: int, count: int):
         if count <= 0:
             return
-        handle = self._open()
+        handle = self._open_excerpt(first, count)
         try:
             self._seek(handle, first)
             pos = first
@@ -148,6 +149,7 @@ class CaptureReader:
                     self._assert_finite(block, pos)
                 yield block
                 pos += n
+            self._finish(handle)
         finally:
             handle.close()
 
@@ -177,6 +179,13 @@ class CaptureReader:
     # --- hooks -------------------------------------------------------------------
     def _open(self):  # pragma: no cover - abstract
         raise NotImplementedError
+
+    def _open_excerpt(self, first: int, count: int):
+        """Open for reading ``count`` samples from ``first`` (default: :meth:`_open`)."""
+        return self._open()
+
+    def _finish(self, handle) -> None:
+        """Called once every block of an excerpt was read (default: nothing; may raise)."""
 
     def _seek(self, handle, first: int) -> None:  # pragma: no cover - abstract
         raise NotImplementedError

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from pathlib import Path
 
 from ..errors import CaptureError, ParameterError
@@ -194,7 +195,17 @@ def open_sigmf(path, *, center_hz=None) -> BinaryReader:
     _check_extent(doc, n, meta_path, data_path)
     info = CaptureInfo(path=meta_path, data_path=data_path, fs=fs, center_hz=center, kind=dt.kind,
                        datatype=dt.name, samples=n)
-    return BinaryReader(info, dt, header)
+    return BinaryReader(info, dt, header, sha512=_sha512(glob, meta_path), meta_path=meta_path)
+
+
+def _sha512(glob: dict, meta_path: Path):
+    """The data file's SHA-512 from ``core:sha512`` (128 hex digits), or None when absent."""
+    value = glob.get("core:sha512")
+    if value is None:
+        return None
+    if not isinstance(value, str) or not re.fullmatch(r"[0-9a-fA-F]{128}", value):
+        raise CaptureError(f"{meta_path}: core:sha512 {str(value)[:40]!r} is not a SHA-512 digest (128 hex digits)")
+    return value.lower()
 
 
 def build_meta(*, datatype: str, fs: float, center_hz=None, description=None, author=None,

@@ -3,10 +3,11 @@
 from __future__ import annotations
 
 import json
+import math
 
 import click
 
-from ..analysis.survey import DEFAULT_THRESHOLD_DB, survey
+from ..analysis.survey import DEFAULT_SURVEY_SECONDS, DEFAULT_THRESHOLD_DB, survey
 from ..capture import open_capture
 from ..units import format_frequency
 from .common import capture_kwargs, capture_options, SdrxCommand, progress_for
@@ -30,10 +31,13 @@ def format_info(info, result, first: int, count: int) -> str:
     lines.append(f"band      {_k(lo)}-{_k(hi)} kHz")
     if first != 0 or count != info.samples:
         lines.append(f"surveyed  {first / info.fs:.6g} s to {(first + count) / info.fs:.6g} s")
-    lines.append(
-        f"noise     {result.noise_floor_dbfs:.1f} dBFS per {result.rbw_hz:.4g} Hz bin; "
-        f"carriers are at least {result.threshold_db:.3g} dB above it"
-    )
+    if math.isfinite(result.noise_floor_dbfs):
+        lines.append(
+            f"noise     {result.noise_floor_dbfs:.1f} dBFS per {result.rbw_hz:.4g} Hz bin; "
+            f"carriers are at least {result.threshold_db:.3g} dB above it"
+        )
+    else:
+        lines.append("noise     none: every sample of the excerpt is zero")
     n = len(result.carriers)
     lines.append(f"carriers  {n} on the {_k(result.spacing_hz)} kHz grid" + (", strongest first:" if n else ""))
     if n:
@@ -64,6 +68,11 @@ def command(capture, datatype, rate, center, start, duration, spacing, as_json, 
     reader = open_capture(capture, **capture_kwargs(datatype, rate, center))
     info = reader.info
     first, count = reader.sample_range(start, duration)
+    capped = duration is None and count > DEFAULT_SURVEY_SECONDS * info.fs
+    if capped:
+        # a long capture is surveyed over its first minute unless --duration asks for more
+        duration = DEFAULT_SURVEY_SECONDS
+        first, count = reader.sample_range(start, duration)
     bar = progress_for("surveying", quiet)
     try:
         result = survey(reader, spacing_hz=spacing, start_s=start, duration_s=duration,
@@ -79,3 +88,6 @@ def command(capture, datatype, rate, center, start, duration, spacing, as_json, 
         click.echo(json.dumps(data, indent=1, allow_nan=False))
     else:
         click.echo(format_info(info, result, first, count))
+        if capped:
+            click.echo(f"          (the first {DEFAULT_SURVEY_SECONDS:g} s of the excerpt by default; --duration S "
+                       "surveys more)")
