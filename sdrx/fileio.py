@@ -65,6 +65,8 @@ def check_output(path, *, inputs: Iterable = (), force: bool = False, option: st
     """
     p = Path(path)
     shown = str(p) if len(str(p)) <= 80 else str(p)[:77] + "..."
+    if str(path) == "" or p.name in ("", ".", ".."):
+        raise OutputError(f"{option} {str(path)!r}: give a file name")
     try:
         if len(os.fsencode(p.name)) > 250:
             raise OutputError(f"{option} {shown}: file name longer than 250 bytes")

@@ -108,7 +108,8 @@ def _load(meta_path: Path) -> dict:
         doc = json.loads(text)
     except json.JSONDecodeError as exc:
         raise CaptureError(
-            f"{meta_path}: SigMF metadata is not valid JSON ({exc.msg} at line {exc.lineno} column {exc.colno})"
+            f"{meta_path}: SigMF metadata is not valid JSON ({exc.msg.removesuffix(' at')} at line {exc.lineno} "
+            f"column {exc.colno})"
         ) from None
     except RecursionError:
         raise CaptureError(f"{meta_path}: SigMF metadata is nested too deeply to read") from None

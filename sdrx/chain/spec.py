@@ -261,6 +261,10 @@ def _convert(value: Any, key: Key, path: str):
     if kind == "str":
         if not isinstance(value, str):
             raise ParameterError(f"{path}: expected a string, got {value!r}")
+        allowed = "\n\t" if key.field == "description" else ""
+        bad = [c for c in value if not c.isprintable() and c not in allowed]
+        if bad:
+            raise ParameterError(f"{path}: holds the control character {bad[0]!r}; write printable text")
         return value
     if kind == "bool":
         if not isinstance(value, bool):

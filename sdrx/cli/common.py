@@ -9,12 +9,24 @@ import click
 from ..errors import SdrxError
 from ..progress import make_progress
 
-__all__ = ["run_cli", "capture_options", "capture_kwargs", "progress_for", "fail", "SdrxCommand", "SdrxGroup",
+__all__ = ["one_line", "run_cli", "capture_options", "capture_kwargs", "progress_for", "fail", "SdrxCommand", "SdrxGroup",
            "usage_line", "split_debug"]
 
 
 def _terminate(signum, frame):
     raise KeyboardInterrupt
+
+
+def one_line(text: str) -> str:
+    """A message as one printable line: line breaks and other control characters (which a file name or
+    a value from a file may hold) are shown as escapes.
+
+    Examples
+    --------
+    >>> one_line("bad name 'a\\nb\\x1b[31m'")
+    "bad name 'a\\\\nb\\\\x1b[31m'"
+    """
+    return "".join(c if c.isprintable() else repr(c)[1:-1] for c in str(text))
 
 
 def split_debug(argv):
@@ -75,7 +87,7 @@ def run_cli(group, argv=None):
     except click.ClickException as exc:
         if debug:
             raise
-        click.echo(f"sdrx: error: {usage_line(exc)}", err=True)
+        click.echo(f"sdrx: error: {one_line(usage_line(exc))}", err=True)
         sys.exit(2)
     except click.Abort:
         click.echo("sdrx: interrupted", err=True)
@@ -86,14 +98,14 @@ def run_cli(group, argv=None):
     except SdrxError as exc:
         if debug:
             raise
-        click.echo(f"sdrx: error: {exc}", err=True)
+        click.echo(f"sdrx: error: {one_line(exc)}", err=True)
         sys.exit(2)
     except OSError as exc:
         if debug:
             raise
         where = exc.filename if exc.filename is not None else "input/output"
         shown = str(where) if len(str(where)) <= 80 else str(where)[:77] + "..."
-        click.echo(f"sdrx: error: {shown}: {exc.strerror or exc}", err=True)
+        click.echo(f"sdrx: error: {one_line(shown)}: {one_line(exc.strerror or exc)}", err=True)
         sys.exit(2)
     if isinstance(rv, int) and rv != 0:
         sys.exit(rv)

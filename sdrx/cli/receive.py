@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from .common import capture_options, SdrxCommand, progress_for
+from .common import SdrxCommand, capture_options, one_line, progress_for
 
 __all__ = ["command"]
 
@@ -61,7 +61,7 @@ def command(capture, tune, chain, out, summary, path, if_rate, float_output, for
         if c["mean"] is not None else f"{out}: {s['output']['seconds']:.3f} s"
     )
     for w in s["warnings"]:
-        click.echo(f"warning: {w}", err=True)
+        click.echo(f"warning: {one_line(w)}", err=True)
     if summary:
         click.echo(f"summary: {summary}")
     return 0

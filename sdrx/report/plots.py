@@ -69,10 +69,17 @@ def _figure():
 
 
 def _png(fig, ctx) -> bytes:
+    import warnings
+
     buf = io.BytesIO()
     try:
-        fig.tight_layout()
-        fig.savefig(buf, format="png", dpi=_DPI, metadata={"Software": None})
+        with warnings.catch_warnings():
+            # titles carry the chain's name: a character the font lacks is drawn as a box, and a title
+            # too long for tight_layout keeps the default layout; neither is worth a warning on stderr
+            warnings.filterwarnings("ignore", r"Glyph .* missing from", UserWarning)
+            warnings.filterwarnings("ignore", r"Tight layout not applied", UserWarning)
+            fig.tight_layout()
+            fig.savefig(buf, format="png", dpi=_DPI, metadata={"Software": None})
     finally:
         ctx.__exit__(None, None, None)
     return buf.getvalue()

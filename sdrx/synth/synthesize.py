@@ -427,6 +427,8 @@ def synthesize(scenario, out, *, seconds=None, seed=None, force=False, progress=
     sc = scenario if isinstance(scenario, Scenario) else load_scenario(scenario)
     sc = sc.with_overrides(seconds=seconds, seed=seed)
     cap = sc.capture
+    if str(out) == "" or Path(out).name in ("", ".", ".."):
+        raise OutputError(f"-o {str(out)!r}: give a capture file name (NAME.sigmf-meta or NAME.wav)")
     out = Path(out)
     where = str(sc.path) if sc.path is not None else "scenario"
     inputs = [sc.path] + [Path(st.program.get("path")) for st in sc.stations if st.program.kind == "wav"]
