@@ -204,3 +204,16 @@ def test_ideal_quadrature_mixer_has_infinite_image_rejection(tmp_path):
     assert "Image rejection: infinite" in page
     assert {p.name for p in written} >= {"image.png", "report.json"}
     assert json.loads((tmp_path / "q" / "report.json").read_text())["designed"]["image_rejection_db"] is None
+
+
+def test_most_stages_and_an_odd_name_draw_without_warnings(tmp_path):
+    """16 stages (the limit; hundreds gave a matplotlib warning on stderr), a name in a script the font
+    lacks and one too long for the layout: the figures are drawn and nothing is printed."""
+    import warnings
+
+    stage = {"response": "butterworth", "order": 2, "bandwidth": "9k", "gain_db": 5}
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        rep = build_report({"name": "名前 " + "long " * 60, "if_stage": [stage] * 16}, 1e6, measure=False)
+        write_report(rep, tmp_path / "r")
+    assert len(rep.data["designed"]["q"]["stages"]) == 17      # the preselector and 16 IF stages

@@ -44,6 +44,7 @@ from pathlib import Path
 from typing import Optional
 
 from ..errors import CaptureError, OutputError, ParameterError
+from ..fileio import check_free_space
 from ..fileset import OutputSet, clean_folder, is_own_temporary, recover
 
 __all__ = [
@@ -358,6 +359,7 @@ class Store:
         digest = file_sha256(audio_src)
         rel = f"{name}.{digest[:12]}.wav"
         dest = self.inside(rel, f"case {name!r}")
+        check_free_space(dest, os.path.getsize(audio_src), option="--store")
         # one set: the WAV under its content-addressed name (it never replaces a WAV the manifest
         # still names), the manifest renamed last, then the case's previous WAV retired
         with OutputSet(self.manifest_path, option="--store") as outputs:
