@@ -237,17 +237,25 @@ def recover(path) -> bool:
     for j in _journals(folder):
         if j == own:
             doc = _read_journal(j)
+            if _in_progress(doc):
+                continue
         else:
             doc = _read_journal(j, strict=False)
             if doc is None:
                 continue
             finals = {os.path.normpath(os.path.abspath(os.path.join(folder, f))) for _t, f in doc["renames"]}
-            if target not in finals:
+            if target not in finals or _in_progress(doc):
                 continue
         _roll_forward(j, doc)
         finished = True
     clean_stale(p)
     return finished
+
+
+def _in_progress(doc: dict) -> bool:
+    """A journal whose process still runs belongs to a commit in progress (a few renames away): not ours to finish."""
+    pid = doc.get("pid")
+    return isinstance(pid, int) and not isinstance(pid, bool) and pid != os.getpid() and _pid_alive(pid)
 
 
 def _journals(folder: Path) -> list:
@@ -433,6 +441,7 @@ class OutputSet:
             "renames": [[os.path.relpath(t, folder), os.path.relpath(f, folder)] for t, f in pairs],
             "retire": [os.path.relpath(r, folder) for r in self._retire],
             "drop_head": drop_head,
+            "pid": os.getpid(),
         }
         tmp = folder / f"{j.name}.{os.getpid()}-{secrets.token_hex(4)}{TEMP_SUFFIX}"
         try:

@@ -181,3 +181,13 @@ def test_fileset_module_keeps_to_the_standard_library():
     mods = {n.module for n in ast.walk(tree) if isinstance(n, ast.ImportFrom)} | \
            {a.name for n in ast.walk(tree) if isinstance(n, ast.Import) for a in n.names}
     assert mods <= {"__future__", "contextlib", "json", "os", "re", "secrets", "pathlib", "typing", "errors"}, mods
+
+
+def test_a_commit_in_progress_in_another_process_is_left_alone(tmp_path):
+    """Two records into one store at once: the second must not finish (race) the first one's renames."""
+    tmp = tmp_path / f".m.json.{os.getppid()}-00000001.partial"
+    tmp.write_text("new")
+    journal_path(tmp_path / "m.json").write_text(json.dumps({
+        "sdrx_commit": 1, "renames": [[tmp.name, "m.json"]], "retire": [], "pid": os.getppid()}))
+    assert not recover(tmp_path / "m.json")
+    assert tmp.exists() and not (tmp_path / "m.json").exists()
