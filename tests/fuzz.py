@@ -22,7 +22,7 @@ from hypothesis import HealthCheck, given, settings  # noqa: E402
 import fuzzing  # noqa: E402
 
 #: share of the cases per target
-SHARES = {"sigmf": 0.3, "spec": 0.3, "cli": 0.4}
+SHARES = {"sigmf": 0.25, "spec": 0.25, "cli": 0.35, "wav": 0.15}
 
 
 def main(argv=None) -> int:

@@ -1,4 +1,5 @@
-"""Property-based fuzz of sdrx's promises (hypothesis): SigMF metadata, chain specs, command-line options.
+"""Property-based fuzz of sdrx's promises (hypothesis): SigMF metadata, chain specs, command-line options,
+and hand-damaged WAV/RF64/W64 captures.
 
 Every case runs the real command line in process and is judged as a user would see it:
 
@@ -29,7 +30,8 @@ from hypothesis import strategies as st
 from sdrx.cli import main
 from sdrx.fileset import is_own_temporary
 
-__all__ = ["Workspace", "run_case", "OUTCOMES", "sigmf_cases", "spec_cases", "cli_cases", "HANG_S", "to_toml"]
+__all__ = ["Workspace", "run_case", "check", "OUTCOMES", "TARGETS", "sigmf_cases", "spec_cases", "cli_cases",
+           "wav_cases", "HANG_S", "to_toml"]
 
 HANG_S = 20.0
 #: outcome counts of this process, by target and outcome
@@ -541,6 +543,56 @@ def cli_argv(ws: Workspace, template: list, out: Path) -> list:
     return out_args
 
 
+# --- target 4: hand-damaged WAV captures ------------------------------------------------------------
+
+@st.composite
+def wav_cases(draw):
+    """(format, channels, subtype, damage list, command): a small WAV/RF64/W64 file, its bytes damaged."""
+    fmt = draw(st.sampled_from(["WAV", "WAV", "RF64", "W64"]))
+    channels = draw(st.sampled_from([1, 2]))
+    subtype = draw(st.sampled_from(["PCM_16", "FLOAT", "PCM_U8", "PCM_24", "DOUBLE"]))
+    damage = draw(st.lists(st.one_of(
+        st.tuples(st.just("cut"), st.floats(0.0, 1.0)),
+        st.tuples(st.just("flip"), st.integers(0, 95), st.integers(1, 255)),
+        st.tuples(st.just("size"), st.sampled_from([4, 40, 44, 56, 72, 76, 80]),
+                  st.sampled_from([0, 1, 7, 0x7FFFFFFF, 0xFFFFFFFF, 2 ** 31 + 3])),
+    ), min_size=0, max_size=3))
+    command = draw(st.sampled_from(["info", "info", "receive"]))
+    return fmt, channels, subtype, damage, command
+
+
+def wav_argv(ws: Workspace, case, out: Path) -> tuple:
+    import io as _io
+    import struct
+
+    import numpy as np
+    import soundfile as sf
+
+    fmt, channels, subtype, damage, command = case
+    n = 24000
+    t = np.arange(n) / 96000.0
+    x = 0.3 * np.cos(2 * np.pi * 10e3 * t)
+    data = np.stack([x, 0.3 * np.sin(2 * np.pi * 10e3 * t)], axis=1) if channels == 2 else x
+    buf = _io.BytesIO()
+    sf.write(buf, data, 96000, format=fmt, subtype=subtype)
+    b = bytearray(buf.getvalue())
+    for d in damage:
+        if d[0] == "cut":
+            b = b[: int(len(b) * d[1])]
+        elif d[0] == "flip" and d[1] < len(b):
+            b[d[1]] ^= d[2]
+        elif d[0] == "size" and d[1] + 4 <= len(b):
+            b[d[1]:d[1] + 4] = struct.pack("<I", d[2])
+    ext = {"WAV": "wav", "RF64": "rf64", "W64": "w64"}[fmt]
+    p = ws.add_input(f"w{ws.n}.{ext}", bytes(b))
+    center = ["--center", "100k"] if channels == 2 else []
+    tune = "110k" if channels == 2 else "10k"
+    if command == "info":
+        return ["info", p, "--json", "--quiet", *center], (p,)
+    return ["receive", p, "--tune", tune, "-o", out / "a.wav", "--quiet", "--chain", "narrow",
+            *center], (p,)
+
+
 # --- the targets, as functions of one drawn case -------------------------------------------------
 
 BAD: list = []          # (target, outcome, detail) of every case that broke a promise
@@ -555,6 +607,8 @@ def check(ws: Workspace, target: str, case) -> str:
         argv, made = sigmf_argv(ws, case, out)
     elif target == "spec":
         argv, made = spec_argv(ws, case, out)
+    elif target == "wav":
+        argv, made = wav_argv(ws, case, out)
     else:
         argv = cli_argv(ws, case, out)
     try:
@@ -571,4 +625,4 @@ def check(ws: Workspace, target: str, case) -> str:
     return outcome
 
 
-TARGETS = {"sigmf": sigmf_cases, "spec": spec_cases, "cli": cli_cases}
+TARGETS = {"sigmf": sigmf_cases, "spec": spec_cases, "cli": cli_cases, "wav": wav_cases}

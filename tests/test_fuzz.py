@@ -5,10 +5,10 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 
 import fuzzing
-from fuzzing import Workspace, check, cli_cases, sigmf_cases, spec_cases
+from fuzzing import Workspace, check, cli_cases, sigmf_cases, spec_cases, wav_cases
 
-# cases per target in make test: 570 in all
-SUITE_CASES = {"sigmf": 200, "spec": 170, "cli": 200}
+# cases per target in make test: 1000 in all
+SUITE_CASES = {"sigmf": 250, "spec": 250, "cli": 350, "wav": 150}
 _SETTINGS = dict(derandomize=True, deadline=None, database=None, print_blob=True,
                  suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow,
                                         HealthCheck.data_too_large, HealthCheck.filter_too_much])
@@ -36,6 +36,12 @@ def test_fuzz_chain_specs(ws, case):
 @given(case=cli_cases())
 def test_fuzz_command_line(ws, case):
     check(ws, "cli", case)
+
+
+@settings(max_examples=SUITE_CASES["wav"], **_SETTINGS)
+@given(case=wav_cases())
+def test_fuzz_damaged_wav_captures(ws, case):
+    check(ws, "wav", case)
 
 
 def test_fuzz_reaches_both_outcomes(ws):
