@@ -42,8 +42,9 @@ __all__ = [
 #: highest RF frequency sdrx takes (tune, centre, band edges, preselector corners): the top of UHF
 #: airband AM with margin
 MAX_RF_HZ = 3e9
-#: intermediate frequency range (chain specs, ``plan --if``)
-MIN_IF_HZ = 1e3
+#: intermediate frequency range (chain specs, ``plan --if``); the receiver also needs 2·IF at least the channel
+#: rate (the image and the IF's mirror lie 2·IF away and must stay outside the channel)
+MIN_IF_HZ = 50e3
 MAX_IF_HZ = 50e6
 #: capture sample rates a reader accepts
 MIN_CAPTURE_RATE_HZ = 1e3
@@ -118,7 +119,7 @@ def check_range(value: float, name: str, low=None, high=None, *, unit: str = "",
     >>> check_range(1e30, "if_frequency", MIN_IF_HZ, MAX_IF_HZ, unit="Hz")
     Traceback (most recent call last):
     ...
-    sdrx.errors.ParameterError: if_frequency: 1e+30 Hz is outside 1 kHz to 50 MHz
+    sdrx.errors.ParameterError: if_frequency: 1e+30 Hz is outside 50 kHz to 50 MHz
     """
     v = float(value)
     bad = not math.isfinite(v)

@@ -611,12 +611,14 @@ def check(ws: Workspace, target: str, case) -> str:
         argv, made = wav_argv(ws, case, out)
     else:
         argv = cli_argv(ws, case, out)
+    import shutil
+
     try:
         outcome, detail = run_case(ws, target, argv, out)
+        if outcome not in ("error", "accepted") and made and made[0].suffix in (".toml", ".sigmf-meta"):
+            detail += f" | {made[0].name}: {made[0].read_text(errors='replace')[:800]!r}"
     finally:
         ws.drop_inputs(made)
-        import shutil
-
         shutil.rmtree(out, ignore_errors=True)
     if outcome not in ("error", "accepted"):
         BAD.append((target, outcome, detail))

@@ -24,8 +24,8 @@ def capture(tmp_path_factory):
 
 
 @pytest.mark.parametrize("toml, match", [
-    ("if_frequency = 1e300\n", "if_frequency: 1e+300 Hz is outside 1 kHz to 50 MHz"),
-    ("if_frequency = 1e30\n", "if_frequency: 1e+30 Hz is outside 1 kHz to 50 MHz"),
+    ("if_frequency = 1e300\n", "if_frequency: 1e+300 Hz is outside 50 kHz to 50 MHz"),
+    ("if_frequency = 1e30\n", "if_frequency: 1e+30 Hz is outside 50 kHz to 50 MHz"),
     ("if_frequency = " + "9" * 400 + "\n", "if_frequency: 9999999999999999... is beyond the range of numbers"),
     ("[agc]\nreference_dbfs = 455000\n", "agc.reference_dbfs: 455000 is outside -80 to 0"),
     ("[agc]\nmax_gain_db = 1e6\n", "agc.max_gain_db: 1e+06 is outside -100 to 120"),
@@ -70,7 +70,7 @@ def test_chain_spec_values_out_of_range(capture, tmp_path, capsys, toml, match):
     (["plan", "--if", "455k", "--band", "540k:1700k", "--spacing", "2.5"], "--spacing: 2.5 Hz is outside 100 Hz"),
     (["plan", "--if", "455k", "--band", "1M:2.9G", "--spacing", "100"],
      "gives 28990001 channels over the band; at most 20000"),
-    (["plan", "--if", "1e-308", "--band", "540k:1700k"], "--if: 1e-308 Hz is outside 1 kHz to 50 MHz"),
+    (["plan", "--if", "1e-308", "--band", "540k:1700k"], "--if: 1e-308 Hz is outside 50 kHz to 50 MHz"),
     (["plan", "--if", "455k", "--band", "540k:1700k", "--reject", "40", "--at", "10k", "--max-q", "-inf"],
      "--max-q -inf: the practical loaded Q must be a finite number above 0"),
     (["plan", "--if", "455k", "--band", "540k:1e300"], "high edge: 1e+300 Hz must be at most 3 GHz"),
@@ -189,3 +189,29 @@ def test_free_space_is_checked_before_writing(capture, tmp_path, capsys, monkeyp
     rc, out, err = run(["synth", tmp_path / "sc.toml", "-o", tmp_path / "big.sigmf-meta"], capsys)
     one_line(rc, err, "big.sigmf-meta: needs about 200 MB, but only 1 MB is free")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["sc.toml"]
+
+
+def test_if_too_low_for_the_channel(capture, tmp_path, capsys):
+    """A 50 kHz IF with 192 kHz audio: the channel rate is 192 kHz and the IF's mirror, 100 kHz away, falls
+    inside the channel (a 1 kHz IF read +330 dBFS)."""
+    spec = tmp_path / "low.toml"
+    spec.write_text('if_frequency = "50k"\n[[if_stage]]\nbandwidth = "9k"\n[audio]\nrate = 192000\n')
+    rc, out, err = run(["receive", capture, "--tune", "1M", "--chain", spec, "-o", tmp_path / "o.wav"], capsys)
+    one_line(rc, err, "if_frequency 50 kHz: too low for the channel rate 192 kHz (audio.rate 192 kHz)")
+    spec.write_text('if_frequency = "50k"\n[[if_stage]]\nbandwidth = "9k"\n')
+    rc, out, err = run(["receive", capture, "--tune", "1M", "--chain", spec, "-o", tmp_path / "o.wav",
+                        "--quiet"], capsys)
+    assert rc == 0, err
+
+
+def test_capture_rate_with_an_awkward_ratio_to_the_audio_rate(tmp_path, capsys):
+    """95.744 kHz: channel rate = capture rate, 375/748 of the audio rate; the resampler's FIR would have
+    half a million taps (0.9 s per quarter second of capture): refused, naming a rate that always works."""
+    from sdrx.synth import parse_scenario, synthesize
+
+    sc = parse_scenario({"capture": {"kind": "iq", "rate": "95744", "center": "1M", "seconds": 0.1},
+                         "station": [{"name": "A", "frequency": "1M", "level_dbfs": -20, "depth": 0.3}]})
+    synthesize(sc, tmp_path / "odd.sigmf-meta")
+    rc, out, err = run(["receive", tmp_path / "odd.sigmf-meta", "--tune", "1M", "-o", tmp_path / "o.wav"], capsys)
+    one_line(rc, err, "ratio to audio.rate 48 kHz is 375/748; the resampler takes ratios up to 20000 in numerator "
+                      "× denominator (a capture rate of at least 96 kHz always works)")

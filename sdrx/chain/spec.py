@@ -194,9 +194,9 @@ _TOP_KEYS = {
 _PRESELECTOR_KEYS = {
     "kind": Key("kind", PRESELECTOR_KINDS),
     "q": Key("q", "float", 0.5, 1000, low_open=True, why="loaded Q of one tuned circuit"),
-    "cutoff": Key("cutoff_hz", "freq", 0, MAX_RF_HZ, low_open=True, unit="Hz"),
-    "low": Key("low_hz", "freq", 0, MAX_RF_HZ, low_open=True, unit="Hz"),
-    "high": Key("high_hz", "freq", 0, MAX_RF_HZ, low_open=True, unit="Hz"),
+    "cutoff": Key("cutoff_hz", "freq", 1e3, MAX_RF_HZ, unit="Hz"),
+    "low": Key("low_hz", "freq", 1e3, MAX_RF_HZ, unit="Hz"),
+    "high": Key("high_hz", "freq", 1e3, MAX_RF_HZ, unit="Hz"),
     "order": Key("order", **_ORDER),
 }
 _MIXER_KEYS = {
@@ -207,10 +207,10 @@ _MIXER_KEYS = {
 _STAGE_KEYS = {
     "response": Key("response", RESPONSES),
     "order": Key("order", **_ORDER),
-    "bandwidth": Key("bandwidth_hz", "freq", 0, MAX_IF_HZ, low_open=True, unit="Hz"),
+    "bandwidth": Key("bandwidth_hz", "freq", 10, MAX_IF_HZ, unit="Hz"),
     "q": Key("q", "float", 0.5, 10000, low_open=True, why="loaded Q of a tuned circuit"),
-    "ripple_db": Key("ripple_db", "float", 0, 10, low_open=True),
-    "stopband_db": Key("stopband_db", "float", 0, 150, low_open=True),
+    "ripple_db": Key("ripple_db", "float", 0.01, 10, why="a smaller ripple puts poles on the axis"),
+    "stopband_db": Key("stopband_db", "float", 3, 150),
     "gain_db": Key("gain_db", "float", -60, 100),
     "agc": Key("agc", "bool"),
 }
