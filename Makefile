@@ -5,7 +5,7 @@ VENV := .venv
 PY := $(VENV)/bin/python
 STAMP := $(VENV)/.sdrx-installed
 
-.PHONY: demo test bench browser clean
+.PHONY: demo test fuzz bench browser clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -19,6 +19,12 @@ demo: $(STAMP)
 # pytest exits 5 when it collects nothing; that is a failure here too (any non-zero status is).
 test: $(STAMP) browser
 	$(PY) -m pytest -q
+
+# Property-based fuzz of the README's promises (tests/fuzzing.py): FUZZ_CASES cases, counts by outcome;
+# fails on any traceback, hang over 20 s, partial file, written input or noise on stderr.
+FUZZ_CASES ?= 10000
+fuzz: $(STAMP)
+	$(PY) tests/fuzz.py --cases $(FUZZ_CASES)
 
 bench: $(STAMP)
 	$(PY) bench/bench.py

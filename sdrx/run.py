@@ -13,25 +13,46 @@ import json
 import math
 from pathlib import Path
 
-import numpy as np
-
 from .chain import design_chain
 from .chain.spec import parse_full_scale_dbm
-from .errors import ParameterError
-from .fileio import atomic_path, check_output
+from .errors import OutputError, ParameterError
+from .fileio import atomic_path, check_free_space, check_output, same_file
+from .fileset import OutputSet
+from .limits import MAX_IF_RATE_HZ, MAX_RF_HZ, check_range
 from .receiver import PATHS, Receiver
 from .units import parse_frequency
 
-__all__ = ["receive", "Receiver", "run_receiver", "write_json"]
+__all__ = ["receive", "Receiver", "run_receiver", "write_json", "json_text", "spec_files"]
 
 DEFAULT_BLOCK = 1 << 20
 
 
+def json_text(obj) -> str:
+    """JSON text of a summary: sorted keys, fixed layout (same content, same bytes); non-finite numbers as null.
+
+    Examples
+    --------
+    >>> " ".join(json_text({"b": float("inf"), "a": 1}).split())
+    '{ "a": 1, "b": null }'
+    """
+    return json.dumps(_finite(obj), indent=2, sort_keys=True, allow_nan=False) + "\n"
+
+
+def _finite(obj):
+    if isinstance(obj, dict):
+        return {k: _finite(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_finite(v) for v in obj]
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return None
+    return obj
+
+
 def write_json(path, obj, *, force: bool = True, inputs=()) -> None:
-    """Write JSON atomically (sorted keys, fixed layout: same content gives same bytes)."""
+    """Write JSON atomically (see :func:`json_text`)."""
     p = check_output(path, inputs=inputs, force=force, option="--summary")
     with atomic_path(p) as tmp:
-        tmp.write_text(json.dumps(obj, indent=2, sort_keys=True, allow_nan=False) + "\n")
+        tmp.write_text(json_text(obj))
 
 
 def run_receiver(reader, rx: Receiver, *, first: int, count: int, block_size: int = DEFAULT_BLOCK,
@@ -163,16 +184,20 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
 
     reader = capture if hasattr(capture, "blocks") else open_capture(capture, datatype=datatype, fs=fs, center_hz=center_hz)
     info = reader.info
-    inputs = [info.path, info.data_path]
+    inputs = [info.path, info.data_path] + spec_files(chain)
     if out is None:
         raise ParameterError("-o: an output WAV path is required")
     out = check_output(out, inputs=inputs, force=force)
     if summary_path is not None:
         summary_path = check_output(summary_path, inputs=inputs + [out], force=force, option="--summary")
-    tune = parse_frequency(tune_hz, "--tune")
+        if same_file(summary_path, out):
+            raise ParameterError(f"--summary {summary_path}: is the output WAV; name another file")
+    tune = check_range(parse_frequency(tune_hz, "--tune"), "--tune", 0, MAX_RF_HZ, low_open=True, unit="Hz")
     design = design_chain(chain)
     first, _ = reader.sample_range(start_s, duration_s)   # a bad excerpt fails before the estimate
     if_rate = None if if_rate_hz is None else parse_frequency(if_rate_hz, "--if-rate")
+    if if_rate is not None:
+        check_range(if_rate, "--if-rate", 0, MAX_IF_RATE_HZ, low_open=True, unit="Hz")
     if if_rate is not None and path != "exact":
         raise ParameterError("--if-rate: only the exact path has an IF sample rate (add --path exact)")
     spacing = parse_frequency(spacing_hz, "--spacing")
@@ -194,11 +219,38 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
     rx = Receiver(design, info, tune, first_sample=first, **rx_kw)
     audio_fs = rx.audio_fs
     expected = int(math.floor(count * audio_fs / info.fs + 1e-9))
-    with AudioWriter(out, audio_fs, float_output=float_output, expected_samples=expected, force=force,
-                     inputs=inputs) as writer:
-        n_audio = run_receiver(reader, rx, first=first, count=count,
-                               block_size=block_size or DEFAULT_BLOCK, sink=writer.write, progress=progress)
-        clipped = writer.clipped
+    check_free_space(out, expected * (4 if float_output else 2))
+    # one set: the summary is complete before anything is renamed; the WAV (-o) appears last
+    with OutputSet(out) as outputs:
+        with AudioWriter(out, audio_fs, float_output=float_output, expected_samples=expected, force=force,
+                         inputs=inputs, outputs=outputs) as writer:
+            n_audio = run_receiver(reader, rx, first=first, count=count,
+                                   block_size=block_size or DEFAULT_BLOCK, sink=writer.write, progress=progress)
+            clipped = writer.clipped
+        summary = _summary(design, rx, info, tune, path, first, count, out, n_audio, float_output, clipped, plan)
+        if summary_path is not None:
+            tmp = outputs.add(summary_path)
+            try:
+                tmp.write_text(json_text(summary))
+            except OSError as exc:
+                raise OutputError(f"--summary {summary_path}: cannot write ({exc.strerror})") from None
+    return summary
+
+
+def spec_files(chain) -> list:
+    """The chain spec file named by ``chain`` (a path that exists), as a list of inputs; [] for presets."""
+    if isinstance(chain, (str, Path)):
+        try:
+            p = Path(chain)
+            if p.is_file():
+                return [p]
+        except OSError:
+            pass
+    return []
+
+
+def _summary(design, rx, info, tune, path, first, count, out, n_audio, float_output, clipped, plan) -> dict:
+    audio_fs = rx.audio_fs
     st = rx.stats()
     summary = {
         "tune_hz": tune,
@@ -234,9 +286,7 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
     if clipped and float_output:
         summary["warnings"].append(f"{clipped} audio samples exceed full scale (kept as they are in the float WAV)")
     elif clipped:
-        summary["warnings"].append(f"{clipped} audio samples clipped at full scale")
-    if summary_path is not None:
-        write_json(summary_path, summary, force=True)
+        summary["warnings"].append(f"{clipped} audio sample{'s' if clipped != 1 else ''} clipped at full scale")
     return summary
 
 
@@ -261,4 +311,4 @@ def _noise_summary(rx):
 
 
 def _round(d: dict) -> dict:
-    return {k: (None if v is None else round(float(v), 4)) for k, v in d.items()}
+    return {k: (None if v is None or not math.isfinite(v) else round(float(v), 4)) for k, v in d.items()}

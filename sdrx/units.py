@@ -14,6 +14,7 @@ import numpy as np
 from .errors import ParameterError
 
 __all__ = [
+    "to_float",
     "parse_frequency",
     "parse_seconds",
     "parse_db",
@@ -27,6 +28,24 @@ __all__ = [
 
 _SUFFIX = {"": 1.0, "k": 1e3, "K": 1e3, "m": 1e6, "M": 1e6, "g": 1e9, "G": 1e9}
 _FREQ_RE = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([kKmMgG]?)\s*(?:hz|Hz|HZ)?\s*$")
+
+
+def to_float(value, name: str) -> float:
+    """A number (int, float, numpy scalar) as a float; an integer beyond float range is an error.
+
+    Examples
+    --------
+    >>> to_float(3, "x")
+    3.0
+    >>> to_float(10 ** 400, "core:sample_rate")
+    Traceback (most recent call last):
+    ...
+    sdrx.errors.ParameterError: core:sample_rate: 1000000000000000... is beyond the range of numbers (about 1.8e308)
+    """
+    try:
+        return float(value)
+    except OverflowError:
+        raise ParameterError(f"{name}: {str(value)[:16]}... is beyond the range of numbers (about 1.8e308)") from None
 
 
 def parse_frequency(value, name: str = "frequency", *, allow_negative: bool = False) -> float:
@@ -64,7 +83,7 @@ def parse_frequency(value, name: str = "frequency", *, allow_negative: bool = Fa
     if isinstance(value, bool):
         raise ParameterError(f"{name}: expected a frequency such as 455k, got {value!r}")
     if isinstance(value, (int, float, np.integer, np.floating)):
-        hz = float(value)
+        hz = to_float(value, name)
     elif isinstance(value, str):
         m = _FREQ_RE.match(value)
         if not m:
@@ -105,7 +124,7 @@ def parse_seconds(value, name: str = "seconds", *, allow_zero: bool = True) -> f
         except ValueError:
             raise ParameterError(f"{name}: cannot read {value!r} as seconds") from None
     elif isinstance(value, (int, float, np.integer, np.floating)):
-        out = float(value)
+        out = to_float(value, name)
     else:
         raise ParameterError(f"{name}: expected seconds, got {value!r}")
     if not math.isfinite(out) or out < 0 or (out == 0 and not allow_zero):
@@ -130,7 +149,7 @@ def parse_db(value, name: str = "level") -> float:
         except ValueError:
             raise ParameterError(f"{name}: cannot read {value!r} as a level in dB") from None
     elif isinstance(value, (int, float, np.integer, np.floating)):
-        out = float(value)
+        out = to_float(value, name)
     else:
         raise ParameterError(f"{name}: expected a level in dB, got {value!r}")
     if not math.isfinite(out):
@@ -167,22 +186,24 @@ def from_db10(db):
 
 
 def validate_fs(fs, name: str = "rate") -> float:
-    """Check a sample rate: a finite number above zero, in Hz.
+    """Check a capture sample rate: a number from 1 kHz to 1 GHz (:mod:`sdrx.limits`), in Hz.
 
     Raises
     ------
     ParameterError
-        If ``fs`` is not finite and positive.
+        If ``fs`` is not a number in that range.
 
     Examples
     --------
     >>> validate_fs("2.4M")
     2400000.0
     """
+    from .limits import MAX_CAPTURE_RATE_HZ, MIN_CAPTURE_RATE_HZ, check_range
+
     hz = parse_frequency(value=fs, name=name, allow_negative=True)
     if hz <= 0:
         raise ParameterError(f"{name}: sample rate must be positive, got {fs!r}")
-    return hz
+    return check_range(hz, name, MIN_CAPTURE_RATE_HZ, MAX_CAPTURE_RATE_HZ, unit="Hz")
 
 
 def format_frequency(hz: float) -> str:
@@ -194,8 +215,12 @@ def format_frequency(hz: float) -> str:
     '1.13 MHz'
     >>> format_frequency(455000.0)
     '455 kHz'
+    >>> format_frequency(3e9)
+    '3 GHz'
     """
     a = abs(hz)
+    if a >= 1e9:
+        return f"{hz / 1e9:.6g} GHz"
     if a >= 1e6:
         return f"{hz / 1e6:.6g} MHz"
     if a >= 1e3:

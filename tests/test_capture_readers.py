@@ -17,7 +17,7 @@ def rng():
     return np.random.default_rng(7919)
 
 
-def write_sigmf(base, codes, datatype, fs=2.4e6, freq=1.0e6, extra_global=None, capture=None, header=b""):
+def write_sigmf(base, codes, datatype, fs=2.4e6, freq=1.3e6, extra_global=None, capture=None, header=b""):
     meta = {"global": {"core:datatype": datatype, "core:version": "1.0.0", "core:sample_rate": fs},
             "captures": [{"core:sample_start": 0}], "annotations": []}
     if freq is not None:
@@ -43,13 +43,13 @@ def random_codes(dt, n, rng):
 def test_sigmf_metadata_from_either_file(tmp_path, rng):
     dt = parse_datatype("ci16_le")
     codes = random_codes(dt, 1000, rng)
-    meta, data = write_sigmf(tmp_path / "rec", codes, "ci16_le", fs=2.4e6, freq=1.13e6)
+    meta, data = write_sigmf(tmp_path / "rec", codes, "ci16_le", fs=2.4e6, freq=1.33e6)
     for named in (meta, data):
         info = open_capture(named).info
         assert info.path == meta and info.data_path == data
-        assert (info.fs, info.center_hz, info.kind, info.datatype, info.samples) == (2.4e6, 1.13e6, "iq", "ci16_le", 1000)
+        assert (info.fs, info.center_hz, info.kind, info.datatype, info.samples) == (2.4e6, 1.33e6, "iq", "ci16_le", 1000)
         assert info.seconds == pytest.approx(1000 / 2.4e6, rel=1e-12)
-        assert info.band_hz == (1.13e6 - 1.2e6, 1.13e6 + 1.2e6)
+        assert info.band_hz == (1.33e6 - 1.2e6, 1.33e6 + 1.2e6)
     j = open_capture(meta).info.to_json()
     assert set(j) == {"path", "rate_hz", "center_hz", "kind", "datatype", "samples", "seconds"}
 
@@ -78,10 +78,10 @@ def test_sigmf_header_bytes_skipped(tmp_path):
 
 def test_sigmf_center_fills_missing_frequency(tmp_path, rng):
     meta, _ = write_sigmf(tmp_path / "c", random_codes(parse_datatype("cu8"), 10, rng), "cu8", freq=None)
-    assert open_capture(meta, center_hz="1.1M").info.center_hz == 1.1e6
-    meta2, _ = write_sigmf(tmp_path / "d", random_codes(parse_datatype("cu8"), 10, rng), "cu8", freq=1.0e6)
+    assert open_capture(meta, center_hz="1.3M").info.center_hz == 1.3e6
+    meta2, _ = write_sigmf(tmp_path / "d", random_codes(parse_datatype("cu8"), 10, rng), "cu8", freq=1.4e6)
     with pytest.raises(ParameterError, match="contradicts core:frequency"):
-        open_capture(meta2, center_hz="1.1M")
+        open_capture(meta2, center_hz="1.3M")
 
 
 @pytest.mark.parametrize("name", ["ci16_le", "cf32_le", "cu8", "ci8", "ri16_le", "rf32_le", "ci32_be", "rf64_le"])
@@ -183,7 +183,11 @@ def test_start_and_duration_seek(tmp_path, rng):
     whole = r.read()
     assert r.sample_range(2.5, 1.0) == (2500, 1000)
     np.testing.assert_array_equal(r.read(2.5, 1.0), whole[2500:3500])
-    assert r.sample_range("9.5", "5") == (9500, 500)  # cut at the end
+    assert r.sample_range("9.5", "0.5") == (9500, 500)
+    # an excerpt past the end is refused with both lengths (it was cut silently)
+    with pytest.raises(CaptureError, match=r"--duration 5 s from --start 9.5 s runs to 14.5 s, past the end of the "
+                                           r"capture \(10 s\); at most 0.5 s from there"):
+        r.sample_range("9.5", "5")
     with pytest.raises(CaptureError, match=r"e.sigmf-meta: --start 10 s is past the end of the capture \(10 s\)"):
         r.sample_range(10.0)
     with pytest.raises(CaptureError, match="past the end"):
@@ -258,9 +262,13 @@ def test_nonfinite_in_float_wav(tmp_path):
 
 
 def test_large_finite_values_pass(tmp_path):
-    # values whose float32 sum overflows are still finite and must not be reported
+    # values whose float32 sum overflows are still finite: reported as beyond the float limit, not as NaN
     codes = np.full(64, 3e38, dtype="<f4")
     meta, _ = write_sigmf(tmp_path / "big", codes, "rf32_le")
+    with pytest.raises(CaptureError, match=r"big.sigmf-data: sample 0 .* is 3e\+38, beyond 1e\+06"):
+        open_capture(meta).read()
+    codes = np.full(64, 9e5, dtype="<f4")     # +119 dBFS: odd but not refused
+    meta, _ = write_sigmf(tmp_path / "loud", codes, "rf32_le")
     assert np.isfinite(open_capture(meta).read()).all()
 
 
@@ -268,10 +276,11 @@ def test_large_finite_values_pass(tmp_path):
 
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(name=st.sampled_from(KNOWN_DATATYPES), n=st.integers(1, 400), block=st.integers(1, 500),
-       start=st.integers(0, 399), fs=st.floats(1.0, 1e8), freq=st.floats(0.0, 3e10),
+       start=st.integers(0, 399), fs=st.floats(1e3, 1e8), where=st.floats(0.0, 1.0),
        header=st.integers(0, 64), seed=st.integers(0, 2**32 - 1))
-def test_property_sigmf_header_and_blocks(tmp_path, name, n, block, start, fs, freq, header, seed):
+def test_property_sigmf_header_and_blocks(tmp_path, name, n, block, start, fs, where, header, seed):
     dt = parse_datatype(name)
+    freq = fs / 2 + where * (3e9 - fs)       # every centre whose I/Q band lies in 0 .. 3 GHz
     start = min(start, n - 1)
     codes = random_codes(dt, n, np.random.default_rng(seed))
     meta, data = write_sigmf(tmp_path / f"p{seed}", codes, name, fs=fs, freq=freq, header=bytes(header))

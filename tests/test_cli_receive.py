@@ -94,9 +94,9 @@ BAD_CHAINS = [
      r"if_stage\[1\]\.bandwidth: 1\.2 MHz is wider than twice the IF \(910 kHz\)"),
     ("[[if_stage]]\nresponse = \"butterworth\"\nbandwidth = \"9k\"\n[[if_stage]]\nresponse = \"butterworth\"\nbandwidth = \"1.2M\"\n",
      r"if_stage\[2\]\.bandwidth: 1\.2 MHz is wider than twice the IF \(910 kHz\)"),
-    ("[[if_stage]]\nresponse = \"single_tuned\"\nq = 0\n", r"if_stage\[1\]\.q: must be above 0, got 0"),
-    ("[[if_stage]]\nresponse = \"double_tuned\"\nq = -3\n", r"if_stage\[1\]\.q: must be above 0, got -3"),
-    ("[preselector]\nkind = \"tracking\"\nq = 0\n", r"preselector\.q: must be above 0"),
+    ("[[if_stage]]\nresponse = \"single_tuned\"\nq = 0\n", r"if_stage\[1\]\.q: 0 must be above 0\.5 and at most 10000"),
+    ("[[if_stage]]\nresponse = \"double_tuned\"\nq = -3\n", r"if_stage\[1\]\.q: -3 must be above 0\.5"),
+    ("[preselector]\nkind = \"tracking\"\nq = 0\n", r"preselector\.q: 0 must be above 0\.5"),
     ("[agc]\nmin_gain_db = 40\nmax_gain_db = 30\n", r"agc\.min_gain_db: 40 is above agc\.max_gain_db \(30\)"),
     ("[mixer]\nkind = \"analog\"\n", r"mixer\.kind: 'analog' is not one of real, quadrature"),
 ]

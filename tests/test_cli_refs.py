@@ -172,7 +172,29 @@ def test_record_verify_cycle(folder, capsys):
     assert code == 1
     assert out.splitlines()[0].startswith("FAIL bench: SNR ")
     assert "0 of 1 cases passed; differences written to" in out
-    assert sorted(p.name for p in (folder / "fail").iterdir()) == ["bench.diff.wav", "bench.spectra.png"]
+    assert sorted(p.name for p in (folder / "fail").iterdir()) == [".sdrx-failures", "bench.diff.wav",
+                                                                    "bench.spectra.png"]
+    # a rerun after a red run is the normal loop: what the earlier verify wrote is replaced, no --force
+    code, out, err = run(["refs", "verify", *cli_args(folder, "--failures", str(folder / "fail"))], capsys)
+    assert code == 1 and err == ""
+    assert sorted(p.name for p in (folder / "fail").iterdir()) == [".sdrx-failures", "bench.diff.wav",
+                                                                    "bench.spectra.png"]
+    # once the case passes again its stale difference files go, and so does the folder
+    (folder / "chains" / "two.toml").write_text(CHAIN.format(bw="9k"))
+    code, out, err = run(["refs", "verify", *cli_args(folder, "--failures", str(folder / "fail"))], capsys)
+    assert code == 0, err
+    assert not (folder / "fail").exists()
+
+
+def test_failures_folder_with_foreign_files_needs_force(recorded, capsys):
+    fail = recorded / "fail"
+    fail.mkdir()
+    (fail / "notes.txt").write_text("mine")
+    code, out, err = run(["refs", "verify", *cli_args(recorded, "--failures", str(fail))], capsys)
+    one_line_error(code, err, "holds files not made by sdrx (notes.txt)")
+    code, out, err = run(["refs", "verify", *cli_args(recorded, "--failures", str(fail), "--force")], capsys)
+    assert code == 0, err
+    assert (fail / "notes.txt").read_text() == "mine"
 
 
 def test_record_refuses_existing_without_update(recorded, capsys):

@@ -105,3 +105,27 @@ def test_paths_agree_on_a_real_capture_with_an_image_near_the_band_edge():
     exact, _ = run_receiver(d, info, 1.0e6, x.astype(np.float32), path="exact")
     assert rx_f.front.has_image
     assert _agreement_db(fast, exact) >= 53.0   # measured 63.1 dB (physical identity: same product)
+
+
+@pytest.mark.parametrize("order, count", [(3, 16), (12, 4)])
+def test_fast_path_exact_at_the_most_stages_a_spec_accepts(order, count):
+    """16 stages (orders adding to 48, the limits): the fast path's measured response is the designed one.
+
+    Before the near-part delay left the channelizer's FIR, identical 9 kHz stages read -22.7 dBFS at 25
+    and gave an all-zero WAV at 50. Reference: the analog prototypes' own response (design.rf_response,
+    scipy's butter + lp2bp_zpk), a consistency check at the 1e-3 dB level the channelizer holds.
+    """
+    from sdrx.analysis import selectivity as sel
+    from sdrx.receiver.fast import MAX_FIR_LAG
+
+    stage = {"response": "butterworth", "order": order, "bandwidth": "9k", "gain_db": 0}
+    d = design_chain({"agc": {"enabled": False}, "if_stage": [stage] * count})
+    offs = np.array([0.0, 3000.0, 4000.0, 5000.0])
+    want = sel.relative_response_db(d, TUNE, TUNE + offs)
+    assert want[-1] < -40.0                                   # down the skirt, not only the flat top
+    got = sel.measure_levels_dbfs(d, TUNE, TUNE + offs, path="fast")
+    np.testing.assert_allclose(got - got[0], want, atol=2e-3)
+    from sdrx.receiver import Receiver
+
+    rx = Receiver(d, sel.tone_capture(d, TUNE, 10e3), TUNE)
+    assert rx.front.delay_line == order * count - MAX_FIR_LAG    # one channel sample per excess near pole

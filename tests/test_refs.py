@@ -109,7 +109,7 @@ def test_bandwidth_change_fails_snr_and_names_case(bench):
     assert r.line().startswith("FAIL bench-1010: SNR ")
     assert any(p.startswith("SNR ") and "< 60.0 dB" in p for p in r.problems)
     assert r.figures["snr_db"] < 60.0
-    assert any("if_stage[0].bandwidth: 9000.0 -> 9450.0" in n for n in r.notes)
+    assert any("if_stage[1].bandwidth: 9000.0 -> 9450.0" in n for n in r.notes)
     diff = folder / "fail" / "bench-1010.diff.wav"
     png = folder / "fail" / "bench-1010.spectra.png"
     assert diff.is_file() and png.is_file() and png.stat().st_size < 200_000

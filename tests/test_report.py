@@ -242,3 +242,28 @@ def test_diode_report_draws_the_clipping_limit():
         assert clip["onset_hz"][k] == pytest.approx(np.sqrt(1 - m * m) / (2 * np.pi * 300e-6 * m), abs=0.1)
     assert sec["distortion"]["thd_percent"]["0.3"] < 0.01 < 5.0 < sec["distortion"]["thd_percent"]["0.8"]
     assert figs["distortion.png"][:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_ideal_quadrature_mixer_has_infinite_image_rejection(tmp_path):
+    """No gain or phase error: K2 = (1 - γe^{-jφ})/2 = 0, no image response at all (it was a TypeError
+    drawing the image figure). JSON holds null, the page says infinite, the figure draws no line."""
+    rep = build_report({"mixer": {"kind": "quadrature"}}, 1e6, measure=False)
+    assert rep.data["designed"]["image_rejection_db"] is None
+    written = write_report(rep, tmp_path / "q")
+    page = (tmp_path / "q" / "report.html").read_text()
+    assert "Image rejection: infinite" in page
+    assert {p.name for p in written} >= {"image.png", "report.json"}
+    assert json.loads((tmp_path / "q" / "report.json").read_text())["designed"]["image_rejection_db"] is None
+
+
+def test_most_stages_and_an_odd_name_draw_without_warnings(tmp_path):
+    """16 stages (the limit; hundreds gave a matplotlib warning on stderr), a name in a script the font
+    lacks and one too long for the layout: the figures are drawn and nothing is printed."""
+    import warnings
+
+    stage = {"response": "butterworth", "order": 2, "bandwidth": "9k", "gain_db": 5}
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        rep = build_report({"name": "名前 " + "long " * 60, "if_stage": [stage] * 16}, 1e6, measure=False)
+        write_report(rep, tmp_path / "r")
+    assert len(rep.data["designed"]["q"]["stages"]) == 17      # the preselector and 16 IF stages

@@ -23,7 +23,9 @@ import math
 from dataclasses import dataclass, field
 
 from ..errors import ParameterError
-from ..units import format_frequency, parse_db, parse_frequency
+from ..limits import (MAX_IF_HZ, MAX_PLAN_CHANNELS, MAX_RF_HZ, MAX_SPACING_HZ, MIN_IF_HZ, MIN_SPACING_HZ,
+                      check_range)
+from ..units import format_frequency, parse_db, parse_frequency, to_float
 from ..chain.design import image_frequency, lo_frequency  # the one definition of the LO plan
 from . import qfactor
 
@@ -51,6 +53,10 @@ __all__ = [
 #: unloaded Q of roughly 100–300, and a circuit loaded by its source and load
 #: keeps perhaps half to two thirds of that. Not from a written source.
 PRACTICAL_LOADED_Q = 200.0
+
+#: Highest --max-q and --reject taken (beyond any tuned circuit; beyond any measurement).
+MAX_PRACTICAL_Q = 1e5
+MAX_REJECT_DB = 300.0
 
 #: Stage counts tabulated by :func:`q_requirements`.
 SINGLE_STAGES = (1, 2, 3, 4)
@@ -251,6 +257,7 @@ def parse_band(text, name: str = "--band") -> tuple:
         raise ParameterError(
             f"{name} {text!r}: low edge {format_frequency(lo)} is not below high edge "
             f"{format_frequency(hi)}; write LO:HI with LO < HI")
+    check_range(hi, f"{name} {text!r}: high edge", high=MAX_RF_HZ, unit="Hz")
     return (lo, hi)
 
 
@@ -372,12 +379,15 @@ def q_requirements(reject_db, offset_hz, if_hz, band_hz, *, practical_q=PRACTICA
     >>> round(t.rows[0].q_loaded, 1)   # one single-tuned circuit at the IF
     253.9
     """
-    pq = float(practical_q)
+    pq = to_float(practical_q, "--max-q")
     if not math.isfinite(pq) or pq <= 0:
-        raise ParameterError(f"--max-q {practical_q!r}: the practical loaded Q must be a number above 0 (e.g. 200)")
+        raise ParameterError(f"--max-q {practical_q!r}: the practical loaded Q must be a finite number above 0 "
+                             "(e.g. 200)")
+    check_range(pq, "--max-q", 0, MAX_PRACTICAL_Q, low_open=True)
     r = parse_db(reject_db, "--reject")
     if r <= 0:
         raise ParameterError(f"--reject {reject_db!r}: the rejection must be above 0 dB")
+    check_range(r, "--reject", 0, MAX_REJECT_DB, low_open=True, unit="dB")
     d = parse_frequency(offset_hz, "--at")
     lo_edge, hi_edge = band_hz
     if d <= 0:
@@ -441,6 +451,8 @@ def frequency_plan(if_hz, band_hz, spacing_hz=10e3, injection="high", *, reject_
         raise ParameterError(f"--injection {injection!r}: choose high or low")
     if f_if <= 0:
         raise ParameterError(f"--if {if_hz!r}: the IF must be above 0 Hz")
+    check_range(f_if, "--if", MIN_IF_HZ, MAX_IF_HZ, unit="Hz")
+    check_range(spacing, "--spacing", MIN_SPACING_HZ, MAX_SPACING_HZ, unit="Hz")
     if band[0] <= f_if <= band[1]:
         raise ParameterError(
             f"--if {format_frequency(f_if)}: inside the band {format_frequency(band[0])}:"
@@ -457,6 +469,11 @@ def frequency_plan(if_hz, band_hz, spacing_hz=10e3, injection="high", *, reject_
         missing = "--at OFFSET" if at_hz is None else "--reject DB"
         given = "--reject" if at_hz is None else "--at"
         raise ParameterError(f"{given} needs {missing} as well (e.g. --reject 40 --at 10k)")
+    n_channels = (band[1] - band[0]) / spacing + 1
+    if n_channels > MAX_PLAN_CHANNELS:
+        raise ParameterError(
+            f"--spacing {format_frequency(spacing)}: gives {n_channels:.0f} channels over the band; at most "
+            f"{MAX_PLAN_CHANNELS} (widen --spacing or narrow --band)")
     grid = channel_grid(band, spacing)
     tol = _REL * band[1]
     chans = []

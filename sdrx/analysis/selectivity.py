@@ -25,6 +25,7 @@ import numpy as np
 from scipy import optimize
 
 from ..errors import ParameterError
+from ..limits import MAX_RF_HZ, MAX_SPACING_HZ, MIN_SPACING_HZ, check_range
 from ..units import db20, format_frequency
 from . import qfactor
 
@@ -91,6 +92,8 @@ def validate_tuning(design, tune_hz, spacing_hz):
     d = float(spacing_hz)
     if not math.isfinite(f) or f <= 0:
         raise ParameterError(f"--tune {tune_hz!r}: must be a frequency above 0 Hz")
+    check_range(f, "--tune", high=MAX_RF_HZ, unit="Hz")
+    check_range(d, "--spacing", MIN_SPACING_HZ, MAX_SPACING_HZ, unit="Hz")
     if not math.isfinite(d) or d <= 0 or d > design.if_hz / 4:
         raise ParameterError(
             f"--spacing {format_frequency(d)}: must be above 0 and at most IF/4 = {format_frequency(design.if_hz / 4)}")

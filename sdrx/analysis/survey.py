@@ -17,12 +17,15 @@ import numpy as np
 from scipy import stats
 
 from ..errors import CaptureError, ParameterError
+from ..limits import MAX_SPACING_HZ, MAX_SURVEY_BINS, MIN_SPACING_HZ, check_range
 from ..units import parse_frequency
 
 __all__ = ["Carrier", "Survey", "BandStatistics", "band_statistics", "survey", "survey_statistics",
-           "survey_carriers", "noise_floor", "DEFAULT_THRESHOLD_DB"]
+           "survey_carriers", "noise_floor", "DEFAULT_THRESHOLD_DB", "DEFAULT_SURVEY_SECONDS"]
 
 DEFAULT_THRESHOLD_DB = 10.0
+#: ``sdrx info`` surveys at most this much of a capture unless --duration asks for more
+DEFAULT_SURVEY_SECONDS = 60.0
 _FALSE_ALARM = 1e-9      # per-bin probability that noise alone passes the threshold
 _BINS_PER_CHANNEL = 64   # target resolution: spacing / 64
 _MIN_BINS_PER_CHANNEL = 8
@@ -31,6 +34,7 @@ _LOBE = 2                # Hann main lobe half-width, bins
 _DYNAMIC_RANGE_DB = 130.0  # floor never below strongest bin minus this (float32 arithmetic spurs)
 _GUARD = 6               # a line's peak is the highest bin within this many bins either side
 _SEGMENTS_PER_BLOCK = 16
+_BLOCK_SAMPLES = 1 << 22
 
 
 @dataclass(frozen=True)
@@ -73,7 +77,9 @@ class Survey:
     def to_json(self) -> dict:
         return {
             "spacing_hz": float(self.spacing_hz),
-            "noise_floor_dbfs": round(float(self.noise_floor_dbfs), 2),
+            # an all-zero excerpt has no noise floor (-inf dBFS): null
+            "noise_floor_dbfs": (round(float(self.noise_floor_dbfs), 2) if math.isfinite(self.noise_floor_dbfs)
+                                 else None),
             "rbw_hz": float(self.rbw_hz),
             "nfft": int(self.nfft),
             "segments": int(self.segments),
@@ -153,6 +159,7 @@ def _check_spacing(info, spacing_hz) -> float:
     spacing = parse_frequency(spacing_hz, "--spacing")
     if spacing <= 0:
         raise ParameterError(f"--spacing: must be positive, got {spacing_hz!r}")
+    check_range(spacing, "--spacing", MIN_SPACING_HZ, MAX_SPACING_HZ, unit="Hz")
     if spacing >= info.fs / 2:
         raise ParameterError(
             f"--spacing {spacing:g}: must be well below the capture's bandwidth (rate {info.fs:g} Hz)"
@@ -193,6 +200,10 @@ def band_statistics(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, pr
     spacing = _check_spacing(info, spacing_hz)
     first, count = reader.sample_range(start_s, duration_s)
     nfft = _choose_nfft(info.fs, spacing, count)
+    if nfft > MAX_SURVEY_BINS:
+        raise ParameterError(
+            f"--spacing {spacing:g}: resolving {spacing:g} Hz channels at the capture rate {info.fs:g} Hz needs a "
+            f"{nfft}-point spectrum; at most {MAX_SURVEY_BINS} (use a wider spacing)")
     if count < nfft:
         raise CaptureError(
             f"{info.path}: excerpt of {count} samples is too short to survey {spacing:g} Hz channels "
@@ -212,8 +223,9 @@ def band_statistics(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, pr
     prev = None
     segments = 0
     done = 0
-    for block in reader.blocks(nfft * _SEGMENTS_PER_BLOCK, start_s=start_s, duration_s=duration_s):
-        take = min(block.shape[0], used - done)
+    per_block = max(1, min(_SEGMENTS_PER_BLOCK, _BLOCK_SAMPLES // nfft))   # blocks of at most 4 Mi samples
+    for block in reader.blocks(nfft * per_block, start_s=start_s, duration_s=duration_s):
+        take = max(0, min(block.shape[0], used - done))
         k = take // nfft
         if k > 0:
             part = block[: k * nfft]
@@ -231,8 +243,8 @@ def band_statistics(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, pr
         done += block.shape[0]
         if progress is not None:
             progress(min(done, count), count)
-        if done >= used:
-            break
+        # the rest of the excerpt (less than a segment is unused) is still read, so that a reader
+        # that checks the file's hash on a whole read (SigMF core:sha512) sees every byte
     scale = norm / segments
 
     def arrange(a):

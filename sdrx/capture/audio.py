@@ -38,6 +38,9 @@ class AudioWriter(WavStreamWriter):
         Replace an existing file.
     inputs : iterable of paths
         Files the output must not be.
+    outputs : OutputSet, optional
+        A set of outputs the WAV joins (e.g. with its run summary); by
+        default it is a set of its own, renamed into place at close.
 
     Notes
     -----
@@ -59,7 +62,7 @@ class AudioWriter(WavStreamWriter):
     """
 
     def __init__(self, path, fs, *, float_output: bool = False, channels: int = 1, expected_samples=None,
-                 force: bool = False, inputs=()):
+                 force: bool = False, inputs=(), outputs=None):
         self.path = Path(path)
         if channels not in (1, 2):
             raise ParameterError(f"channels: must be 1 or 2, got {channels!r}")
@@ -72,7 +75,7 @@ class AudioWriter(WavStreamWriter):
         self.samples = 0
         self.clipped = 0
         self._stream = WavStream(self.path, fs, channels, "float32" if float_output else "pcm16",
-                                 expected_frames=expected_samples, info={})
+                                 expected_frames=expected_samples, info={}, outputs=outputs)
         self._closed = False
 
     def write(self, block) -> int:

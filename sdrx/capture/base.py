@@ -8,6 +8,7 @@ from typing import Iterator
 import numpy as np
 
 from ..errors import CaptureError, ParameterError
+from ..limits import MAX_FLOAT_SAMPLE
 from ..units import parse_seconds
 from .meta import CaptureInfo
 
@@ -35,7 +36,8 @@ class CaptureReader:
 
     Subclass hooks: ``_open()`` returns an object with ``close()``;
     ``_seek(handle, first)`` positions it; ``_read(handle, count)`` returns
-    ``count`` converted samples (float32 or complex64).
+    ``count`` converted samples (float32 or complex64); ``_open_excerpt``
+    and ``_finish`` may check what a whole read saw (a hash).
     """
 
     def __init__(self, info: CaptureInfo, *, may_hold_nonfinite: bool):
@@ -55,8 +57,7 @@ class CaptureReader:
         start_s : float or str
             Start, seconds into the capture (rounded to the nearest sample).
         duration_s : float, str or None
-            Length, seconds; None for the rest of the capture. An excerpt
-            reaching past the end is cut at the end.
+            Length, seconds; None for the rest of the capture.
 
         Returns
         -------
@@ -66,23 +67,31 @@ class CaptureReader:
         Raises
         ------
         CaptureError
-            If the start lies at or past the end of a non-empty capture.
+            If the capture holds no samples, the start lies at or past its
+            end, or the excerpt runs past its end (the message gives both
+            lengths; half a sample of rounding is allowed).
         ParameterError
             If start or duration is not a valid number of seconds.
         """
         info = self.info
         start = parse_seconds(0.0 if start_s is None else start_s, "--start")
-        first = int(round(start * info.fs))
-        if first >= info.samples and not (first == 0 and info.samples == 0):
+        if info.samples == 0:
+            raise CaptureError(f"{info.path}: the capture holds no samples")
+        if start * info.fs >= info.samples - 0.5:
             raise CaptureError(
                 f"{info.path}: --start {start:g} s is past the end of the capture ({info.seconds:.6g} s)"
             )
+        first = int(round(start * info.fs))
         avail = info.samples - first
         if duration_s is None:
-            count = avail
-        else:
-            dur = parse_seconds(duration_s, "--duration", allow_zero=False)
-            count = min(avail, max(1, int(round(dur * info.fs))))
+            return first, avail
+        dur = parse_seconds(duration_s, "--duration", allow_zero=False)
+        if dur * info.fs > avail + 1.0:
+            raise CaptureError(
+                f"{info.path}: --duration {dur:g} s from --start {start:g} s runs to {start + dur:.6g} s, past "
+                f"the end of the capture ({info.seconds:.6g} s); at most {avail / info.fs:.6g} s from there"
+            )
+        count = min(avail, max(1, int(round(dur * info.fs))))
         return first, count
 
     # --- blocks ------------------------------------------------------------------
@@ -123,7 +132,7 @@ class CaptureReader:
     def _iterate(self, block_size: int, first: int, count: int):
         if count <= 0:
             return
-        handle = self._open()
+        handle = self._open_excerpt(first, count)
         try:
             self._seek(handle, first)
             pos = first
@@ -140,28 +149,43 @@ class CaptureReader:
                     self._assert_finite(block, pos)
                 yield block
                 pos += n
+            self._finish(handle)
         finally:
             handle.close()
 
     def _assert_finite(self, block: np.ndarray, pos: int) -> None:
-        # one cheap reduction first: a sum is finite when every term is
-        with np.errstate(over="ignore", invalid="ignore"):
-            total = np.add.reduce(block.view(np.float32) if block.dtype == np.complex64 else block)
-        if math.isfinite(float(total)):
+        # two cheap reductions: NaN propagates through max and min, inf and huge values show in them
+        flat = block.view(np.float32) if block.dtype == np.complex64 else block
+        if flat.size == 0:
             return
-        bad = np.flatnonzero(~np.isfinite(block))
-        if bad.size == 0:  # the sum overflowed; every value is finite
+        hi, lo = float(flat.max()), float(flat.min())
+        if math.isfinite(hi) and math.isfinite(lo) and max(hi, -lo) <= MAX_FLOAT_SAMPLE:
             return
+        with np.errstate(invalid="ignore"):
+            bad = np.flatnonzero(~(np.abs(block) <= MAX_FLOAT_SAMPLE))
         i = pos + int(bad[0])
-        what = "NaN" if bool(np.isnan(block[bad[0]])) else "infinite"
+        v = block[bad[0]]
+        if bool(np.isnan(v)):
+            what = "NaN"
+        elif not bool(np.isfinite(v)):
+            what = "infinite"
+        else:
+            what = f"{abs(complex(v)):.3g}, beyond {MAX_FLOAT_SAMPLE:g} (full scale is 1.0)"
         raise CaptureError(
             f"{self.info.data_path}: sample {i} (t = {i / self.info.fs:.6f} s) is {what}; "
-            f"{int(bad.size)} non-finite value(s) in this block"
+            f"{int(bad.size)} such value(s) in this block"
         )
 
     # --- hooks -------------------------------------------------------------------
     def _open(self):  # pragma: no cover - abstract
         raise NotImplementedError
+
+    def _open_excerpt(self, first: int, count: int):
+        """Open for reading ``count`` samples from ``first`` (default: :meth:`_open`)."""
+        return self._open()
+
+    def _finish(self, handle) -> None:
+        """Called once every block of an excerpt was read (default: nothing; may raise)."""
 
     def _seek(self, handle, first: int) -> None:  # pragma: no cover - abstract
         raise NotImplementedError

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Optional
 
-__all__ = ["CaptureInfo"]
+__all__ = ["CaptureInfo", "check_info"]
 
 
 @dataclass(frozen=True)
@@ -77,3 +77,48 @@ class CaptureInfo:
             "samples": int(self.samples),
             "seconds": float(self.seconds),
         }
+
+
+def check_info(info: CaptureInfo, center_name: str = "--center") -> CaptureInfo:
+    """Refuse capture metadata that cannot be meant, before anything is read.
+
+    Parameters
+    ----------
+    info : CaptureInfo
+    center_name : str
+        Where the centre frequency came from (``--center`` or the metadata
+        key), for the message.
+
+    Raises
+    ------
+    CaptureError
+        A rate outside 1 kHz to 1 GHz, more than 2^40 samples, an I/Q band
+        reaching below 0 Hz (centre below rate/2) or above 3 GHz
+        (:mod:`sdrx.limits`).
+
+    Examples
+    --------
+    >>> info = CaptureInfo(Path("a.cu8"), Path("a.cu8"), 2.4e6, 1e6, "iq", "cu8", 10)
+    >>> check_info(info)
+    Traceback (most recent call last):
+    ...
+    sdrx.errors.CaptureError: a.cu8: the I/Q band -200 kHz to 2.2 MHz reaches below 0 Hz; --center 1 MHz must be at least rate/2 = 1.2 MHz
+    """
+    from ..errors import CaptureError
+    from ..limits import MAX_CAPTURE_RATE_HZ, MAX_CAPTURE_SAMPLES, MAX_RF_HZ, MIN_CAPTURE_RATE_HZ
+    from ..units import format_frequency as ff
+
+    if not MIN_CAPTURE_RATE_HZ <= info.fs <= MAX_CAPTURE_RATE_HZ:
+        raise CaptureError(f"{info.path}: sample rate {info.fs:g} Hz is outside {ff(MIN_CAPTURE_RATE_HZ)} to "
+                           f"{ff(MAX_CAPTURE_RATE_HZ)}")
+    if info.samples > MAX_CAPTURE_SAMPLES:
+        raise CaptureError(f"{info.path}: {info.samples} samples; at most 2^40 = {MAX_CAPTURE_SAMPLES} are read")
+    if info.kind == "iq":
+        lo, hi = info.band_hz
+        if lo < 0:
+            raise CaptureError(f"{info.path}: the I/Q band {ff(lo)} to {ff(hi)} reaches below 0 Hz; "
+                               f"{center_name} {ff(info.center_hz)} must be at least rate/2 = {ff(info.fs / 2)}")
+        if hi > MAX_RF_HZ:
+            raise CaptureError(f"{info.path}: the I/Q band {ff(lo)} to {ff(hi)} reaches above {ff(MAX_RF_HZ)}; "
+                               f"{center_name} {ff(info.center_hz)} is beyond what sdrx models")
+    return info

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import hashlib
 from pathlib import Path
 
 import numpy as np
@@ -67,10 +68,34 @@ class BinaryReader(CaptureReader):
     [(0.5+0j), -0.5j]
     """
 
-    def __init__(self, info: CaptureInfo, dt: Datatype, offset_bytes: int = 0):
+    def __init__(self, info: CaptureInfo, dt: Datatype, offset_bytes: int = 0, sha512=None, meta_path=None):
         super().__init__(info, may_hold_nonfinite=dt.is_float)
         self.dt = dt
         self.offset_bytes = int(offset_bytes)
+        self.sha512 = sha512          # hex digest the data file must have (SigMF core:sha512), or None
+        self._meta_path = meta_path
+
+    def _open_excerpt(self, first: int, count: int):
+        """A read of the whole file carries a SHA-512 of its bytes when ``sha512`` is to be checked.
+
+        The hash is computed on the bytes as they are read (the header bytes
+        first), so the check costs no extra pass over the file: about 2 s of
+        CPU per GB at the 500 MB/s SHA-512 runs at here, in the reading thread.
+        """
+        fh = self._open()
+        hasher = None
+        if self.sha512 is not None and first == 0 and count == self.info.samples:
+            hasher = hashlib.sha512(fh.read(self.offset_bytes))
+        return _Handle(fh, hasher)
+
+    def _finish(self, handle) -> None:
+        if handle.hasher is None:
+            return
+        got = handle.hasher.hexdigest()
+        if got != self.sha512:
+            raise CaptureError(
+                f"{self.info.data_path}: its SHA-512 {got[:16]}... does not match core:sha512 "
+                f"{self.sha512[:16]}... in {self._meta_path} (the data or the metadata was changed or replaced)")
 
     def _open(self):
         try:
@@ -79,13 +104,26 @@ class BinaryReader(CaptureReader):
             raise CaptureError(f"{self.info.data_path}: no such file") from None
 
     def _seek(self, handle, first: int) -> None:
-        handle.seek(self.offset_bytes + first * self.dt.sample_bytes)
+        handle.file.seek(self.offset_bytes + first * self.dt.sample_bytes)
 
     def _read(self, handle, count: int) -> np.ndarray:
-        raw = np.fromfile(handle, dtype=self.dt.component_dtype, count=count * self.dt.components)
+        raw = np.fromfile(handle.file, dtype=self.dt.component_dtype, count=count * self.dt.components)
+        if handle.hasher is not None:
+            handle.hasher.update(raw.view(np.uint8))
         if raw.size % self.dt.components:
             raw = raw[: raw.size - raw.size % self.dt.components]
         return self.dt.decode(raw)
+
+
+class _Handle:
+    """An open sample file and, on a whole read that is checked, the running hash of its bytes."""
+
+    def __init__(self, file, hasher):
+        self.file = file
+        self.hasher = hasher
+
+    def close(self) -> None:
+        self.file.close()
 
 
 def open_raw(path: Path, dt: Datatype, fs: float, center_hz) -> BinaryReader:

@@ -8,6 +8,7 @@ from ..errors import CaptureError, ParameterError
 from ..units import parse_frequency, validate_fs
 from .base import CaptureReader
 from .datatypes import parse_datatype
+from .meta import check_info
 from .raw import open_raw
 from .sigmf import is_sigmf_path, open_sigmf
 from .sigmf_archive import is_sigmf_archive, open_sigmf_archive
@@ -57,7 +58,15 @@ def open_capture(path, *, datatype=None, fs=None, center_hz=None) -> CaptureRead
     >>> r.read().tolist()
     [(1-1j), (-1+1j)]
     """
-    p = Path(path)
+    try:
+        return _open(Path(path), datatype, fs, center_hz)
+    except OSError as exc:
+        text = str(path)
+        shown = text if len(text) <= 80 else text[:77] + "..."
+        raise CaptureError(f"{shown}: {exc.strerror or exc}") from None
+
+
+def _open(p: Path, datatype, fs, center_hz) -> CaptureReader:
     rate = None if fs is None else validate_fs(fs, "--rate")
     center = None if center_hz is None else parse_frequency(center_hz, "--center")
     name = p.name.lower()
@@ -67,22 +76,34 @@ def open_capture(path, *, datatype=None, fs=None, center_hz=None) -> CaptureRead
                 f"--format/--rate: apply to headerless raw files; {p} has a header with its own format and rate"
             )
         if is_sigmf_path(p):
-            return open_sigmf(p, center_hz=center)
-        return open_soundfile(p, center_hz=center)
+            reader = open_sigmf(p, center_hz=center)
+            center_name = "--center" if center is not None else "captures[0].core:frequency"
+        else:
+            reader = open_soundfile(p, center_hz=center)
+            center_name = "--center"
+        check_info(reader.info, center_name)
+        return reader
     if is_sigmf_archive(p):
         if datatype is not None or rate is not None:
             raise ParameterError(
                 f"--format/--rate: apply to headerless raw files; {p} is a SigMF archive with its own format and rate"
             )
-        return open_sigmf_archive(p, center_hz=center)
+        reader = open_sigmf_archive(p, center_hz=center)
+        check_info(reader.info, "--center" if center is not None else "captures[0].core:frequency")
+        return reader
     if datatype is not None:
         dt = parse_datatype(datatype, "--format")
         if not p.exists():
             raise CaptureError(f"{p}: no such file")
-        return open_raw(p, dt, rate, center)
+        return _checked(open_raw(p, dt, rate, center))
     if not p.exists():
         raise CaptureError(f"{p}: no such file")
     raise CaptureError(
         f"{p}: unknown capture type; name a .wav/.rf64/.w64 file, a .sigmf-meta/.sigmf-data pair or a .sigmf archive, "
         "or give --format DATATYPE --rate HZ for a headerless raw file"
     )
+
+
+def _checked(reader):
+    check_info(reader.info)
+    return reader

@@ -13,9 +13,12 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from pathlib import Path
 
 from ..errors import CaptureError, ParameterError
+from ..limits import MAX_CAPTURE_RATE_HZ, MIN_CAPTURE_RATE_HZ
+from ..units import format_frequency
 from .datatypes import parse_datatype
 from .meta import CaptureInfo
 from .raw import BinaryReader, binary_sample_count
@@ -24,6 +27,8 @@ __all__ = ["SIGMF_VERSION", "sigmf_pair", "is_sigmf_path", "open_sigmf", "meta_f
 
 SIGMF_VERSION = "1.0.0"
 META_SUFFIX = ".sigmf-meta"
+#: largest metadata file read (annotations of a long recording stay far below this)
+MAX_META_BYTES = 64 << 20
 DATA_SUFFIX = ".sigmf-data"
 
 
@@ -47,13 +52,53 @@ def sigmf_pair(path) -> tuple:
 
 
 def _number(value, key: str, meta_path: Path) -> float:
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-        raise CaptureError(f"{meta_path}: {key} must be a number, got {value!r}")
-    return float(value)
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise CaptureError(f"{meta_path}: {key} must be a number, got {str(value)[:40]!r}")
+    try:
+        x = float(value)
+    except OverflowError:
+        raise CaptureError(f"{meta_path}: {key} = {str(value)[:16]}... is beyond the range of numbers") from None
+    if not math.isfinite(x):
+        raise CaptureError(f"{meta_path}: {key} must be a finite number, got {value!r}")
+    return x
+
+
+def _dataset(glob: dict, meta_path: Path) -> Path:
+    """The data file named by ``core:dataset``: a plain file name beside the metadata."""
+    name = glob["core:dataset"]
+    if not isinstance(name, str) or not name or name in (".", "..") or "/" in name or "\\" in name \
+            or "\0" in name:
+        raise CaptureError(f"{meta_path}: core:dataset {str(name)[:60]!r} must be a plain file name beside the "
+                           "metadata (no folders)")
+    return meta_path.with_name(name)
+
+
+def _check_extent(doc: dict, n: int, meta_path: Path, data_path: Path) -> None:
+    """Capture segments and annotations must lie inside the data: else the data was cut short."""
+    for where, items, count_key in (("captures", doc.get("captures") or [], None),
+                                    ("annotations", doc.get("annotations") or [], "core:sample_count")):
+        if not isinstance(items, list):
+            raise CaptureError(f"{meta_path}: {where} must be a list of objects")
+        for i, item in enumerate(items):
+            if not isinstance(item, dict):
+                raise CaptureError(f"{meta_path}: {where}[{i}] must be an object")
+            start = item.get("core:sample_start", 0)
+            length = item.get(count_key, 0) if count_key else 0
+            if isinstance(start, bool) or not isinstance(start, int) or start < 0 \
+                    or isinstance(length, bool) or not isinstance(length, int) or length < 0:
+                raise CaptureError(f"{meta_path}: {where}[{i}]: core:sample_start (and core:sample_count) must be "
+                                   "whole numbers >= 0")
+            end = start + length
+            if start > n or end > n:
+                raise CaptureError(f"{meta_path}: {where}[{i}] reaches sample {max(start, end)}, but {data_path.name} "
+                                   f"holds {n} samples (cut short?)")
 
 
 def _load(meta_path: Path) -> dict:
     try:
+        if meta_path.stat().st_size > MAX_META_BYTES:
+            raise CaptureError(f"{meta_path}: {meta_path.stat().st_size} bytes of metadata; at most "
+                               f"{MAX_META_BYTES >> 20} MiB are read")
         text = meta_path.read_text(encoding="utf-8")
     except FileNotFoundError:
         raise CaptureError(f"{meta_path}: no such file (the metadata of a SigMF recording)") from None
@@ -63,8 +108,11 @@ def _load(meta_path: Path) -> dict:
         doc = json.loads(text)
     except json.JSONDecodeError as exc:
         raise CaptureError(
-            f"{meta_path}: SigMF metadata is not valid JSON ({exc.msg} at line {exc.lineno} column {exc.colno})"
+            f"{meta_path}: SigMF metadata is not valid JSON ({exc.msg.removesuffix(' at')} at line {exc.lineno} "
+            f"column {exc.colno})"
         ) from None
+    except RecursionError:
+        raise CaptureError(f"{meta_path}: SigMF metadata is nested too deeply to read") from None
     if not isinstance(doc, dict) or not isinstance(doc.get("global"), dict):
         raise CaptureError(f"{meta_path}: SigMF metadata lacks its 'global' object")
     return doc
@@ -97,12 +145,13 @@ def open_sigmf(path, *, center_hz=None) -> BinaryReader:
     doc = _load(meta_path)
     glob = doc["global"]
     if "core:dataset" in glob:
-        data_path = meta_path.with_name(str(glob["core:dataset"]))
+        data_path = _dataset(glob, meta_path)
     dt, fs, center, header = meta_fields(doc, meta_path, center_hz)
     n = binary_sample_count(data_path, dt, header)
+    _check_extent(doc, n, meta_path, data_path)
     info = CaptureInfo(path=meta_path, data_path=data_path, fs=fs, center_hz=center, kind=dt.kind,
                        datatype=dt.name, samples=n)
-    return BinaryReader(info, dt, header)
+    return BinaryReader(info, dt, header, sha512=_sha512(glob, meta_path), meta_path=meta_path)
 
 
 def meta_fields(doc: dict, meta_path, center_hz=None) -> tuple:
@@ -138,9 +187,13 @@ def meta_fields(doc: dict, meta_path, center_hz=None) -> tuple:
     fs = _number(glob["core:sample_rate"], "core:sample_rate", meta_path)
     if fs <= 0:
         raise CaptureError(f"{meta_path}: core:sample_rate must be positive, got {glob['core:sample_rate']!r}")
+    if not MIN_CAPTURE_RATE_HZ <= fs <= MAX_CAPTURE_RATE_HZ:
+        raise CaptureError(f"{meta_path}: core:sample_rate {fs:g} Hz is outside {format_frequency(MIN_CAPTURE_RATE_HZ)} "
+                           f"to {format_frequency(MAX_CAPTURE_RATE_HZ)}")
     channels = glob.get("core:num_channels", 1)
     if channels != 1:
-        raise CaptureError(f"{meta_path}: core:num_channels is {channels!r}; sdrx reads single-channel recordings")
+        raise CaptureError(f"{meta_path}: core:num_channels is {str(channels)[:20]}; sdrx reads single-channel "
+                           "recordings")
     captures = doc.get("captures") or [{}]
     if not isinstance(captures, list) or not all(isinstance(c, dict) for c in captures):
         raise CaptureError(f"{meta_path}: captures must be a list of objects")
@@ -170,6 +223,16 @@ def meta_fields(doc: dict, meta_path, center_hz=None) -> tuple:
             raise ParameterError(f"--center: applies to I/Q captures; {meta_path} holds real samples ({dt.name})")
         center = None
     return dt, fs, center, header
+
+
+def _sha512(glob: dict, meta_path: Path):
+    """The data file's SHA-512 from ``core:sha512`` (128 hex digits), or None when absent."""
+    value = glob.get("core:sha512")
+    if value is None:
+        return None
+    if not isinstance(value, str) or not re.fullmatch(r"[0-9a-fA-F]{128}", value):
+        raise CaptureError(f"{meta_path}: core:sha512 {str(value)[:40]!r} is not a SHA-512 digest (128 hex digits)")
+    return value.lower()
 
 
 def build_meta(*, datatype: str, fs: float, center_hz=None, description=None, author=None,

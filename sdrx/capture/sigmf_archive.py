@@ -17,7 +17,7 @@ from pathlib import Path, PurePosixPath
 from ..errors import CaptureError
 from .meta import CaptureInfo
 from .raw import BinaryReader
-from .sigmf import meta_fields
+from .sigmf import _check_extent, meta_fields
 
 __all__ = ["ARCHIVE_SUFFIX", "is_sigmf_archive", "open_sigmf_archive"]
 
@@ -84,6 +84,7 @@ def open_sigmf_archive(path, *, center_hz=None) -> BinaryReader:
     if payload < 0 or payload % dt.sample_bytes:
         raise CaptureError(f"{p}:{data_member.name}: {data_member.size} bytes is not a whole number of {dt.name} "
                            f"samples ({dt.sample_bytes} bytes each) after a {header}-byte header")
+    _check_extent(doc, payload // dt.sample_bytes, label, p)
     info = CaptureInfo(path=p, data_path=p, fs=fs, center_hz=center, kind=dt.kind, datatype=dt.name,
                        samples=payload // dt.sample_bytes)
     return BinaryReader(info, dt, data_member.offset_data + header)

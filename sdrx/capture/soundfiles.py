@@ -15,7 +15,7 @@ from ..errors import CaptureError, ParameterError
 from .base import CaptureReader
 from .meta import CaptureInfo
 
-__all__ = ["SoundFileReader", "open_soundfile", "SOUNDFILE_SUFFIXES"]
+__all__ = ["SoundFileReader", "open_soundfile", "data_chunk_shortfall", "SOUNDFILE_SUFFIXES"]
 
 SOUNDFILE_SUFFIXES = (".wav", ".wave", ".rf64", ".w64")
 
@@ -73,6 +73,62 @@ class SoundFileReader(CaptureReader):
         return data
 
 
+def data_chunk_shortfall(path: Path):
+    """(declared, present) bytes of a WAV/RF64/W64 file's data chunk when the file is cut short, else None.
+
+    libsndfile reads a file cut in the middle of its data as a shorter
+    capture, without a word; the chunk sizes in the header tell.
+
+    Notes
+    -----
+    RIFF/WAV and RF64 (EBU Tech 3306: the ``ds64`` chunk holds the 64-bit
+    data size); Sony Wave64 (chunks named by 16-byte GUIDs whose sizes count
+    their 24-byte header, aligned to 8 bytes). A RIFF data size of 0xFFFFFFFF
+    (a recorder that never finished its header) is not judged.
+    """
+    import struct
+
+    try:
+        size = path.stat().st_size
+        with open(path, "rb") as fh:
+            head = fh.read(12)
+            if len(head) < 12:
+                return None
+            w64 = head[:4] == b"riff"
+            if head[:4] not in (b"RIFF", b"RF64") and not w64:
+                return None
+            ds64 = None
+            pos = 40 if w64 else 12
+            for _ in range(64):                       # a data chunk comes within the first few
+                fh.seek(pos)
+                hdr = fh.read(24 if w64 else 8)
+                if len(hdr) < (24 if w64 else 8):
+                    return None
+                cid = hdr[:4]
+                if w64:
+                    csize = struct.unpack("<Q", hdr[16:24])[0]
+                    body, nxt = csize - 24, pos + ((csize + 7) // 8) * 8
+                else:
+                    csize = struct.unpack("<I", hdr[4:8])[0]
+                    body, nxt = csize, pos + 8 + csize + (csize & 1)
+                    if cid == b"ds64":
+                        ds64 = struct.unpack("<Q", fh.read(16)[8:16])[0]
+                if cid == b"data":
+                    start = pos + (24 if w64 else 8)
+                    if not w64 and csize == 0xFFFFFFFF:
+                        if ds64 is None:
+                            return None
+                        body = ds64
+                    present = size - start
+                    return (body, present) if body > present else None
+                if body < 0:
+                    return None
+                pos = nxt
+    except OSError:
+        return None
+    return None
+
+
 def open_soundfile(path: Path, *, center_hz=None) -> SoundFileReader:
     """Reader of a WAV/RF64/W64 file: mono = real, stereo = I/Q (needs ``center_hz``).
 
@@ -104,6 +160,10 @@ def open_soundfile(path: Path, *, center_hz=None) -> SoundFileReader:
         )
     if sfi.samplerate <= 0:
         raise CaptureError(f"{path}: sample rate must be positive, got {sfi.samplerate}")
+    short = data_chunk_shortfall(path)
+    if short is not None:
+        raise CaptureError(f"{path}: its data chunk declares {short[0]} bytes but the file holds {short[1]} "
+                           "(cut short?); sdrx does not read a truncated capture")
     stem, may_nonfinite = _SUBTYPES[sfi.subtype]
     if sfi.channels == 2:
         if center_hz is None:

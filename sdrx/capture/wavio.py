@@ -24,7 +24,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import OutputError, ParameterError
-from ..fileio import atomic_path
+from ..fileset import OutputSet
 
 __all__ = ["AtomicFile", "WavStream", "AtomicWriter", "WavStreamWriter", "RIFF_LIMIT"]
 
@@ -32,49 +32,73 @@ RIFF_LIMIT = 0xFFFFFFFF  # largest size a 32-bit RIFF size field holds
 _FORMATS = {"pcm16": (1, 16, np.dtype("<i2")), "float32": (3, 32, np.dtype("<f4"))}
 
 
-class _Abort(Exception):
-    pass
-
-
 class AtomicFile:
-    """A binary file written under a temporary name and renamed onto ``path`` by :meth:`commit`.
+    """A binary file written under a temporary name and renamed onto ``path`` when committed.
+
+    Parameters
+    ----------
+    path : str or Path
+        The final path.
+    outputs : OutputSet, optional
+        The set the file belongs to: :meth:`commit` then only closes the
+        file, and the set renames it with the others. Without one the file
+        is a set of its own, renamed by :meth:`commit`.
+
+    Notes
+    -----
+    A write the file system refuses (a full disk) raises
+    :class:`~sdrx.errors.OutputError` naming the final path, and the
+    temporary is removed.
 
     Examples
     --------
     >>> import tempfile, pathlib
     >>> p = pathlib.Path(tempfile.mkdtemp()) / "x.bin"
-    >>> a = AtomicFile(p); _ = a.file.write(b"ok"); a.commit()
+    >>> a = AtomicFile(p); a.write(b"ok"); a.commit()
     >>> p.read_bytes()
     b'ok'
     """
 
-    def __init__(self, path):
+    def __init__(self, path, outputs=None):
         self.path = Path(path)
-        self._cm = atomic_path(self.path)
-        self.tmp = self._cm.__enter__()
+        self._own = outputs is None
+        self.outputs = OutputSet(self.path) if outputs is None else outputs
+        self.tmp = self.outputs.add(self.path)
         try:
-            self.file = open(self.tmp, "wb")
-        except BaseException:
-            self._cm.__exit__(_Abort, _Abort(), None)
-            raise
+            self.file = open(self.tmp, "r+b")
+        except OSError as exc:
+            self.outputs.abort()
+            raise OutputError(f"{self.path}: cannot write ({exc.strerror})") from None
         self.done = False
 
+    def write(self, data) -> None:
+        """Append bytes (or a buffer)."""
+        try:
+            self.file.write(data)
+        except OSError as exc:
+            self.abort()
+            raise OutputError(f"{self.path}: cannot write ({exc.strerror}); nothing was left under that name") from None
+
     def commit(self) -> None:
-        """Close and rename onto the final path."""
+        """Close; rename onto the final path (or leave that to the set the file belongs to)."""
         if self.done:
             return
         self.done = True
-        self.file.close()
-        self._cm.__exit__(None, None, None)
+        try:
+            self.file.close()
+        except OSError as exc:
+            self.outputs.abort()
+            raise OutputError(f"{self.path}: cannot write ({exc.strerror}); nothing was left under that name") from None
+        if self._own:
+            self.outputs.commit()
 
     def abort(self) -> None:
-        """Close and remove the temporary file; the final path is left as it was."""
-        if self.done:
-            return
-        self.done = True
-        self.file.close()
-        with contextlib.suppress(_Abort):
-            self._cm.__exit__(_Abort, _Abort(), None)
+        """Close and remove the temporary file (and the set's others); the final path is left as it was."""
+        if not self.done:
+            self.done = True
+            with contextlib.suppress(OSError):
+                self.file.close()
+        self.outputs.abort()
 
 
 def _info_chunk(tags: dict) -> bytes:
@@ -109,6 +133,8 @@ class WavStream:
     info : dict, optional
         RIFF INFO tags (``ICMT`` comment, ``IART`` artist, ``ISFT`` software,
         ``ICRD`` date) written in a LIST chunk before the data.
+    outputs : OutputSet, optional
+        The set of outputs the file belongs to (see :class:`AtomicFile`).
 
     Raises
     ------
@@ -119,7 +145,8 @@ class WavStream:
         said it would fit.
     """
 
-    def __init__(self, path, fs, channels: int, sample_format: str, *, expected_frames=None, info=None):
+    def __init__(self, path, fs, channels: int, sample_format: str, *, expected_frames=None, info=None,
+                 outputs=None):
         if sample_format not in _FORMATS:
             raise ParameterError(f"sample_format: {sample_format!r} not one of {', '.join(_FORMATS)}")
         if channels not in (1, 2):
@@ -141,8 +168,8 @@ class WavStream:
             big = self._riff_size(int(expected_frames) * self.block_align, reserve=False) > RIFF_LIMIT
             self._layout = "rf64" if big else "wav"
         self._header_len = len(self._header(0))
-        self._file = AtomicFile(self.path)
-        self._file.file.write(self._header(0))
+        self._file = AtomicFile(self.path, outputs)
+        self._file.write(self._header(0))
 
     # --- header ----------------------------------------------------------------
     def _fmt(self) -> bytes:
@@ -192,7 +219,7 @@ class WavStream:
             raise OutputError(
                 f"{self.path}: more samples than announced; a plain WAV cannot exceed 4 GiB"
             )
-        self._file.file.write(memoryview(c).cast("B"))
+        self._file.write(memoryview(c).cast("B"))
         self.frames = new_frames
 
     def close(self) -> None:
@@ -203,7 +230,7 @@ class WavStream:
             header = self._header(self.frames * self.block_align, final=True)
             assert len(header) == self._header_len
             self._file.file.seek(0)
-            self._file.file.write(header)
+            self._file.write(header)
         except BaseException:
             self._file.abort()
             raise

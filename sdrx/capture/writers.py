@@ -10,6 +10,7 @@ import numpy as np
 
 from ..errors import OutputError, ParameterError
 from ..fileio import check_output
+from ..fileset import OutputSet
 from ..units import parse_frequency, validate_fs
 from .datatypes import parse_datatype
 from .sigmf import build_meta, is_sigmf_path, sigmf_pair
@@ -75,20 +76,20 @@ class SigMFWriter(CaptureWriter):
     'ci8'
     """
 
-    def __init__(self, path, *, fs, kind, dt, center_hz, meta):
+    def __init__(self, path, *, fs, kind, dt, center_hz, meta, outputs=None):
         super().__init__(dt, fs, kind)
         self.meta_path, self.data_path = sigmf_pair(path)
         self.path = self.meta_path
         self._meta = meta
         self._center = center_hz
         self._sha = hashlib.sha512()
-        # entered in this order so that data is renamed before meta
-        self._meta_file = AtomicFile(self.meta_path)
-        try:
-            self._data_file = AtomicFile(self.data_path)
-        except BaseException:
-            self._meta_file.abort()
-            raise
+        # one set: the data renamed before the metadata, which a reader opens first
+        self._own = outputs is None
+        self.outputs = OutputSet(self.meta_path) if outputs is None else outputs
+        if outputs is not None and outputs.head is None:
+            outputs.head = self.meta_path
+        self._data_file = AtomicFile(self.data_path, self.outputs)
+        self._meta_file = AtomicFile(self.meta_path, self.outputs)
 
     def write(self, block) -> int:
         """Append samples; returns the number of components clipped."""
@@ -96,14 +97,14 @@ class SigMFWriter(CaptureWriter):
             codes, clipped = self._encode(block)
             buf = memoryview(np.ascontiguousarray(codes)).cast("B")
             self._sha.update(buf)
-            self._data_file.file.write(buf)
+            self._data_file.write(buf)
         except BaseException:
             self.abort()
             raise
         return clipped
 
     def close(self) -> None:
-        """Write the metadata and rename data, then metadata, into place."""
+        """Write the metadata (with the data's SHA-512); commit data and metadata (or leave that to the set)."""
         if self._closed:
             return
         self._closed = True
@@ -114,16 +115,17 @@ class SigMFWriter(CaptureWriter):
                              datetime=m.get("datetime"), sha512=self._sha.hexdigest(),
                              annotations=m.get("annotations", ()), extra_global=m.get("global"))
             text = json.dumps(doc, indent=2, ensure_ascii=False) + "\n"
-            self._meta_file.file.write(text.encode("utf-8"))
+            self._meta_file.write(text.encode("utf-8"))
             self._data_file.commit()
+            self._meta_file.commit()
+            if self._own:
+                self.outputs.commit()
         except BaseException:
-            self._data_file.abort()
-            self._meta_file.abort()
+            self.abort()
             raise
-        self._meta_file.commit()
 
     def abort(self) -> None:
-        """Remove both temporary files."""
+        """Remove both temporary files (and the others of the set)."""
         self._closed = True
         self._data_file.abort()
         self._meta_file.abort()
@@ -136,7 +138,7 @@ class WavCaptureWriter(WavStreamWriter, CaptureWriter):
     ``--center``. ``meta`` description/author/datetime go to RIFF INFO tags.
     """
 
-    def __init__(self, path, *, fs, kind, dt, meta, expected_samples=None):
+    def __init__(self, path, *, fs, kind, dt, meta, expected_samples=None, outputs=None):
         super().__init__(dt, fs, kind)
         self.path = Path(path)
         tags = {}
@@ -153,7 +155,7 @@ class WavCaptureWriter(WavStreamWriter, CaptureWriter):
             if meta.get(key):
                 raise ParameterError(f"meta.{key}: a WAV capture cannot hold it; write a .sigmf-meta recording")
         self._stream = WavStream(self.path, fs, 2 if kind == "iq" else 1, WAV_DATATYPES[dt.name],
-                                 expected_frames=expected_samples, info=tags)
+                                 expected_frames=expected_samples, info=tags, outputs=outputs)
 
     def write(self, block) -> int:
         """Append samples; returns the number of components clipped."""
@@ -167,7 +169,7 @@ class WavCaptureWriter(WavStreamWriter, CaptureWriter):
 
 
 def open_writer(path, *, fs, kind, datatype, center_hz=None, force=False, inputs=(), meta=None,
-                expected_samples=None) -> CaptureWriter:
+                expected_samples=None, outputs=None) -> CaptureWriter:
     """Open a capture writer chosen by the path's suffix.
 
     Parameters
@@ -196,6 +198,9 @@ def open_writer(path, *, fs, kind, datatype, center_hz=None, force=False, inputs
     expected_samples : int, optional
         WAV: the number of samples to be written, when known (picks WAV or RF64
         up front); otherwise room for an RF64 header is reserved.
+    outputs : OutputSet, optional
+        A set of outputs the capture's files join (committed with the others,
+        e.g. a truth sidecar); by default the capture is a set of its own.
 
     Returns
     -------
@@ -236,12 +241,13 @@ def open_writer(path, *, fs, kind, datatype, center_hz=None, force=False, inputs
             raise ParameterError(f"center_hz: applies to I/Q captures; {dt.name} is real")
         check_output(meta_path, inputs=inputs, force=force)
         check_output(data_path, inputs=inputs, force=force)
-        return SigMFWriter(meta_path, fs=rate, kind=kind, dt=dt, center_hz=center, meta=meta)
+        return SigMFWriter(meta_path, fs=rate, kind=kind, dt=dt, center_hz=center, meta=meta, outputs=outputs)
     if p.suffix.lower() == ".wav":
         if dt.name not in WAV_DATATYPES:
             raise ParameterError(
                 f"datatype {dt.name}: a WAV capture holds one of {', '.join(WAV_DATATYPES)}"
             )
         check_output(p, inputs=inputs, force=force)
-        return WavCaptureWriter(p, fs=rate, kind=kind, dt=dt, meta=meta, expected_samples=expected_samples)
+        return WavCaptureWriter(p, fs=rate, kind=kind, dt=dt, meta=meta, expected_samples=expected_samples,
+                                outputs=outputs)
     raise ParameterError(f"{p}: unknown output type; name a .sigmf-meta, .sigmf-data or .wav file")

@@ -8,20 +8,17 @@ values, e.g. ``if_stage[2].bandwidth: 1.2M is wider than twice the IF (910k)``.
 from __future__ import annotations
 
 import dataclasses
-import difflib
 import math
-import sys
+import difflib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping
 
 from ..errors import ParameterError
-from ..units import format_frequency, parse_db, parse_frequency
+from ..limits import MAX_IF_HZ, MAX_IF_STAGES, MAX_RF_HZ, MAX_TOTAL_ORDER, MIN_IF_HZ, check_range
+from ..tomlfile import read_toml
+from ..units import format_frequency, parse_db, parse_frequency, to_float
 
-if sys.version_info >= (3, 11):
-    import tomllib
-else:  # pragma: no cover
-    import tomli as tomllib
 
 __all__ = [
     "PreselectorSpec",
@@ -43,6 +40,8 @@ __all__ = [
     "check_noise_figure_db",
     "FULL_SCALE_DBM_RANGE",
     "NOISE_FIGURE_DB_RANGE",
+    "Key",
+    "MAX_TOTAL_GAIN_DB",
 ]
 
 PRESET_DIR = Path(__file__).with_name("presets")
@@ -252,12 +251,51 @@ class ChainSpec:
     notch: NotchSpec = field(default_factory=NotchSpec)
 
 
-# key name in TOML -> (field name, kind)
+@dataclass(frozen=True)
+class Key:
+    """One key of a spec table: the dataclass field it fills, how its value is read, and its bounds.
+
+    Parameters
+    ----------
+    field : str
+        Field of the spec dataclass.
+    kind : str or tuple
+        ``"str"``, ``"bool"``, ``"freq"`` (Hz, "455k" allowed), ``"int"``,
+        ``"float"``, ``"db"`` (a number or "-30 dB"), or a tuple of the
+        allowed strings.
+    low, high : float, optional
+        Bounds (inclusive unless ``low_open``/``high_open``); every number
+        sdrx accepts has both, named in the error.
+    unit : str
+        Unit for the message ("Hz" prints kHz/MHz).
+    why : str
+        What the bound protects, for the message (optional).
+
+    Notes
+    -----
+    To add a key: one line in its section's table below (and the field on
+    the dataclass). Checks that involve two keys (``min_gain_db`` below
+    ``max_gain_db``) go in :func:`parse_spec` after the table is read.
+    """
+
+    field: str
+    kind: Any
+    low: float | None = None
+    high: float | None = None
+    low_open: bool = False
+    high_open: bool = False
+    unit: str = ""
+    why: str = ""
+
+
+_ORDER = dict(kind="int", low=1, high=12)
+
+# key name in TOML -> Key; one table per section
 _TOP_KEYS = {
-    "name": ("name", "str"),
-    "description": ("description", "str"),
-    "if_frequency": ("if_hz", "freq"),
-    "injection": ("injection", INJECTIONS),
+    "name": Key("name", "str"),
+    "description": Key("description", "str"),
+    "if_frequency": Key("if_hz", "freq", MIN_IF_HZ, MAX_IF_HZ, unit="Hz"),
+    "injection": Key("injection", INJECTIONS),
     "preselector": None,
     "mixer": None,
     "if_stage": None,
@@ -269,71 +307,81 @@ _TOP_KEYS = {
     "notch": None,
 }
 _PRESELECTOR_KEYS = {
-    "kind": ("kind", PRESELECTOR_KINDS),
-    "q": ("q", "posfloat"),
-    "cutoff": ("cutoff_hz", "freq"),
-    "low": ("low_hz", "freq"),
-    "high": ("high_hz", "freq"),
-    "order": ("order", "order"),
+    "kind": Key("kind", PRESELECTOR_KINDS),
+    "q": Key("q", "float", 0.5, 1000, low_open=True, why="loaded Q of one tuned circuit"),
+    "cutoff": Key("cutoff_hz", "freq", 1e3, MAX_RF_HZ, unit="Hz"),
+    "low": Key("low_hz", "freq", 1e3, MAX_RF_HZ, unit="Hz"),
+    "high": Key("high_hz", "freq", 1e3, MAX_RF_HZ, unit="Hz"),
+    "order": Key("order", **_ORDER),
 }
 _MIXER_KEYS = {
-    "kind": ("kind", MIXER_KINDS),
-    "gain_error_db": ("gain_error_db", "float"),
-    "phase_error_deg": ("phase_error_deg", "float"),
+    "kind": Key("kind", MIXER_KINDS),
+    "gain_error_db": Key("gain_error_db", "float", -20, 20),
+    "phase_error_deg": Key("phase_error_deg", "float", -90, 90, low_open=True, high_open=True),
 }
 _STAGE_KEYS = {
-    "response": ("response", RESPONSES),
-    "order": ("order", "order"),
-    "bandwidth": ("bandwidth_hz", "freq"),
-    "q": ("q", "posfloat"),
-    "ripple_db": ("ripple_db", "posfloat"),
-    "stopband_db": ("stopband_db", "posfloat"),
-    "gain_db": ("gain_db", "float"),
-    "agc": ("agc", "bool"),
+    "response": Key("response", RESPONSES),
+    "order": Key("order", **_ORDER),
+    "bandwidth": Key("bandwidth_hz", "freq", 10, MAX_IF_HZ, unit="Hz"),
+    "q": Key("q", "float", 0.5, 10000, low_open=True, why="loaded Q of a tuned circuit"),
+    "ripple_db": Key("ripple_db", "float", 0.01, 10, why="a smaller ripple puts poles on the axis"),
+    "stopband_db": Key("stopband_db", "float", 3, 150),
+    "gain_db": Key("gain_db", "float", -60, 100),
+    "agc": Key("agc", "bool"),
 }
 _AGC_KEYS = {
-    "enabled": ("enabled", "bool"),
-    "reference_dbfs": ("reference_dbfs", "db"),
-    "carrier_filter_ms": ("carrier_filter_ms", "nonneg"),
-    "attack_ms": ("attack_ms", "posfloat"),
-    "release_ms": ("release_ms", "posfloat"),
-    "hang_ms": ("hang_ms", "nonneg"),
-    "max_gain_db": ("max_gain_db", "db"),
-    "min_gain_db": ("min_gain_db", "db"),
+    "enabled": Key("enabled", "bool"),
+    "reference_dbfs": Key("reference_dbfs", "db", -80, 0, why="carrier level at the detector"),
+    "carrier_filter_ms": Key("carrier_filter_ms", "float", 0, 1000, why="the AGC filter's time constant"),
+    "attack_ms": Key("attack_ms", "float", 0.1, 10000),
+    "release_ms": Key("release_ms", "float", 1, 100000),
+    "hang_ms": Key("hang_ms", "float", 0, 60000),
+    "max_gain_db": Key("max_gain_db", "db", -100, 120),
+    "min_gain_db": Key("min_gain_db", "db", -100, 120),
 }
 _DETECTOR_KEYS = {
-    "kind": ("kind", DETECTOR_KINDS),
-    "rc_us": ("rc_us", "posfloat"),
-    "pll_bandwidth": ("pll_bandwidth_hz", "freq"),
-    "sideband": ("sideband", SIDEBANDS),
+    "kind": Key("kind", DETECTOR_KINDS),
+    "rc_us": Key("rc_us", "float", 0.1, 100000),
+    "pll_bandwidth": Key("pll_bandwidth_hz", "freq", 0.1, 5000, unit="Hz"),
+    "sideband": Key("sideband", SIDEBANDS),
 }
 _AUDIO_KEYS = {
-    "rate": ("rate_hz", "freq"),
-    "highpass": ("highpass_hz", "freq"),
-    "lowpass": ("lowpass_hz", "freq"),
-    "highpass_order": ("highpass_order", "order"),
-    "lowpass_order": ("lowpass_order", "order"),
-    "gain_db": ("gain_db", "float"),
+    "rate": Key("rate_hz", "freq", 8000, 192000, unit="Hz"),
+    "highpass": Key("highpass_hz", "freq", 1, 96000, unit="Hz"),
+    "lowpass": Key("lowpass_hz", "freq", 1, 96000, unit="Hz"),
+    "highpass_order": Key("highpass_order", **_ORDER),
+    "lowpass_order": Key("lowpass_order", **_ORDER),
+    "gain_db": Key("gain_db", "float", -60, 60),
 }
+#: the stage gains summed (fixed and AGC-controlled): beyond this the arithmetic, not the chain, decides
+MAX_TOTAL_GAIN_DB = 200.0
+
+def _seed(value: Any, path: str) -> int:
+    if isinstance(value, bool) or not isinstance(value, int) or not 0 <= value < 2 ** 63:
+        raise ParameterError(f"{path}: expected a whole number from 0 to 2^63 - 1, got {value!r}")
+    return value
+
 
 _FRONTEND_KEYS = {
-    "full_scale_dbm": ("full_scale_dbm", "dbm"),
-    "noise_figure_db": ("noise_figure_db", "db"),
-    "seed": ("seed", "seed"),
+    "full_scale_dbm": Key("full_scale_dbm", parse_full_scale_dbm),
+    "noise_figure_db": Key("noise_figure_db", "db", *NOISE_FIGURE_DB_RANGE),
+    "seed": Key("seed", _seed),
 }
 
 
 _BLANKER_KEYS = {
-    "enabled": ("enabled", "bool"),
-    "threshold_db": ("threshold_db", "posfloat"),
-    "width_us": ("width_us", "posfloat"),
-    "level_ms": ("level_ms", "posfloat"),
+    "enabled": Key("enabled", "bool"),
+    "threshold_db": Key("threshold_db", "float", 3, 60, unit="dB"),
+    "width_us": Key("width_us", "float", 0.1, 1000, unit="us"),
+    "level_ms": Key("level_ms", "float", 0.05, 100, unit="ms"),
 }
 
 
 def _frequency_list(value: Any, path: str) -> tuple:
     if not isinstance(value, list):
         raise ParameterError(f"{path}: expected a list of frequencies such as [\"1.5k\", 3000], got {value!r}")
+    if len(value) > 64:
+        raise ParameterError(f"{path}: {len(value)} frequencies; at most 64")
     out = []
     for i, v in enumerate(value):
         hz = parse_frequency(v, f"{path}[{i}]")
@@ -343,38 +391,17 @@ def _frequency_list(value: Any, path: str) -> tuple:
     return tuple(out)
 
 
-def _whole_number(value: Any, path: str) -> int:
-    if isinstance(value, bool) or not isinstance(value, int):
-        raise ParameterError(f"{path}: expected a whole number, got {value!r}")
-    return value
-
-
 _NOTCH_KEYS = {
-    "auto": ("auto", "bool"),
-    "frequencies": ("frequencies_hz", _frequency_list),
-    "width": ("width_hz", "freq"),
-    "threshold_db": ("threshold_db", "posfloat"),
-    "steady_s": ("steady_s", "posfloat"),
-    "max_tones": ("max_tones", _whole_number),
+    "auto": Key("auto", "bool"),
+    "frequencies": Key("frequencies_hz", _frequency_list),
+    "width": Key("width_hz", "freq", 1, 500, unit="Hz"),
+    "threshold_db": Key("threshold_db", "float", 6, 60, unit="dB"),
+    "steady_s": Key("steady_s", "float", 0.2, 30, unit="s"),
+    "max_tones": Key("max_tones", "int", 1, 16),
 }
-
-# ranges of the blanker's and the notch's keys: (low, high) inclusive, with the unit for the message
-_BLANKER_RANGES = {"threshold_db": (3.0, 60.0, "dB"), "width_us": (0.1, 1000.0, "us"), "level_ms": (0.05, 100.0, "ms")}
-_NOTCH_RANGES = {"width": (1.0, 500.0, "Hz"), "threshold_db": (6.0, 60.0, "dB"), "steady_s": (0.2, 30.0, "s"),
-                 "max_tones": (1, 16, "")}
-
-
-def _check_ranges(obj, keys: Mapping, ranges: Mapping, where: str) -> None:
-    """One-line errors for keys outside their range, naming the key, the value and the limits."""
-    for key, (lo, hi, unit) in ranges.items():
-        v = getattr(obj, keys[key][0])
-        if not lo <= v <= hi:
-            u = f" {unit}" if unit else ""
-            raise ParameterError(f"{where}.{key}: {v:g}{u} is outside {lo:g} to {hi:g}{u}")
 
 
 def _check_notch(notch: NotchSpec, audio: AudioSpec) -> None:
-    _check_ranges(notch, _NOTCH_KEYS, _NOTCH_RANGES, "notch")
     for i, f in enumerate(notch.frequencies_hz):
         if f >= audio.rate_hz / 2:
             raise ParameterError(
@@ -393,7 +420,10 @@ def _check_keys(table: Mapping, allowed: Mapping, where: str) -> None:
             )
 
 
-def _convert(value: Any, kind, path: str):
+def _convert(value: Any, key: Key, path: str):
+    """Read one value as its :class:`Key` says, and check its bounds (a callable kind reads and
+    checks the value itself: ``kind(value, path)``)."""
+    kind = key.kind
     if callable(kind):
         return kind(value, path)
     if isinstance(kind, tuple):
@@ -403,41 +433,32 @@ def _convert(value: Any, kind, path: str):
     if kind == "str":
         if not isinstance(value, str):
             raise ParameterError(f"{path}: expected a string, got {value!r}")
+        allowed = "\n\t" if key.field == "description" else ""
+        bad = [c for c in value if not c.isprintable() and c not in allowed]
+        if bad:
+            raise ParameterError(f"{path}: holds the control character {bad[0]!r}; write printable text")
         return value
     if kind == "bool":
         if not isinstance(value, bool):
             raise ParameterError(f"{path}: expected true or false, got {value!r}")
         return value
+    if kind == "int":
+        if isinstance(value, bool) or not isinstance(value, int) or not key.low <= value <= key.high:
+            raise ParameterError(f"{path}: expected a whole number from {key.low:g} to {key.high:g}, got {value!r}")
+        return value
     if kind == "freq":
-        hz = parse_frequency(value, path)
-        if hz <= 0:
+        out = parse_frequency(value, path)
+        if out <= 0:
             raise ParameterError(f"{path}: must be above 0 Hz, got {value!r}")
-        return hz
-    if kind == "order":
-        if isinstance(value, bool) or not isinstance(value, int) or not 1 <= value <= 12:
-            raise ParameterError(f"{path}: expected a whole number from 1 to 12, got {value!r}")
-        return value
-    if kind == "dbm":
-        return parse_full_scale_dbm(value, path)
-    if kind == "seed":
-        if isinstance(value, bool) or not isinstance(value, int) or not 0 <= value < 2 ** 63:
-            raise ParameterError(f"{path}: expected a whole number >= 0, got {value!r}")
-        return value
-    if kind in ("float", "posfloat", "nonneg", "db"):
-        if kind == "db" and isinstance(value, str):
-            out = parse_db(value, path)
-        elif isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise ParameterError(f"{path}: expected a number, got {value!r}")
-        else:
-            out = float(value)
-        if not math.isfinite(out):
-            raise ParameterError(f"{path}: {value!r} is not finite")
-        if kind == "posfloat" and out <= 0:
-            raise ParameterError(f"{path}: must be above 0, got {value!r}")
-        if kind == "nonneg" and out < 0:
-            raise ParameterError(f"{path}: must be 0 or more, got {value!r}")
-        return out
-    raise AssertionError(kind)  # pragma: no cover
+    elif kind == "db" and isinstance(value, str):
+        out = parse_db(value, path)
+    elif isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise ParameterError(f"{path}: expected a number, got {value!r}")
+    else:
+        out = to_float(value, path)
+    if key.high_open and out == key.high:
+        raise ParameterError(f"{path}: {out:g} must be below {key.high:g}")
+    return check_range(out, path, key.low, key.high, unit=key.unit, low_open=key.low_open, why=key.why)
 
 
 def _table(raw: Mapping, key: str) -> Mapping:
@@ -451,8 +472,8 @@ def _build(cls, table: Mapping, keys: Mapping, where: str, base=None):
     _check_keys(table, keys, where)
     kwargs = {}
     for key, value in table.items():
-        fname, kind = keys[key]
-        kwargs[fname] = _convert(value, kind, f"{where}.{key}" if where else key)
+        k = keys[key]
+        kwargs[k.field] = _convert(value, k, f"{where}.{key}" if where else key)
     return dataclasses.replace(base if base is not None else cls(), **kwargs)
 
 
@@ -461,7 +482,7 @@ def _build_stage(table: Mapping, index: int, if_hz: float) -> IfStageSpec:
     if not isinstance(table, Mapping):
         raise ParameterError(f"{where}: expected a table ([[if_stage]]), got {table!r}")
     _check_keys(table, _STAGE_KEYS, where)
-    response = _convert(table.get("response", "butterworth"), RESPONSES, f"{where}.response")
+    response = _convert(table.get("response", "butterworth"), _STAGE_KEYS["response"], f"{where}.response")
     if response in ("single_tuned", "double_tuned"):
         if "bandwidth" in table and "q" in table:
             raise ParameterError(f"{where}: give either q or bandwidth for {response}, not both")
@@ -485,6 +506,22 @@ def _build_stage(table: Mapping, index: int, if_hz: float) -> IfStageSpec:
     if response == "elliptic" and stage.stopband_db <= stage.ripple_db:
         raise ParameterError(f"{where}.stopband_db: {stage.stopband_db:g} must exceed ripple_db ({stage.ripple_db:g})")
     return stage
+
+
+def _stage_order(st: IfStageSpec) -> int:
+    """Pole pairs a stage puts at the IF: its prototype order (2 for a double-tuned pair)."""
+    return {"single_tuned": 1, "double_tuned": 2}.get(st.response, st.order)
+
+
+def _check_stage_totals(stages) -> None:
+    total = sum(_stage_order(st) for st in stages)
+    if total > MAX_TOTAL_ORDER:
+        raise ParameterError(f"if_stage: the stages' orders add up to {total}; at most {MAX_TOTAL_ORDER} "
+                             "(pole pairs at the IF) are supported")
+    gain = sum(st.gain_db for st in stages)
+    if abs(gain) > MAX_TOTAL_GAIN_DB:
+        raise ParameterError(f"if_stage: the stage gains add up to {gain:g} dB; at most {MAX_TOTAL_GAIN_DB:g} dB "
+                             "either way")
 
 
 def parse_spec(raw: Mapping, source: str = "<spec>", default_name: str | None = None) -> ChainSpec:
@@ -521,8 +558,8 @@ def parse_spec(raw: Mapping, source: str = "<spec>", default_name: str | None = 
     top = {}
     for key in ("name", "description", "if_frequency", "injection"):
         if key in raw:
-            fname, kind = _TOP_KEYS[key]
-            top[fname] = _convert(raw[key], kind, key)
+            k = _TOP_KEYS[key]
+            top[k.field] = _convert(raw[key], k, key)
     if_hz = top.get("if_hz", ChainSpec.if_hz)
     pre = _build(PreselectorSpec, _table(raw, "preselector"), _PRESELECTOR_KEYS, "preselector")
     if pre.kind == "bandpass" and pre.low_hz >= pre.high_hz:
@@ -532,8 +569,6 @@ def parse_spec(raw: Mapping, source: str = "<spec>", default_name: str | None = 
     mixer = _build(MixerSpec, _table(raw, "mixer"), _MIXER_KEYS, "mixer")
     if mixer.kind == "real" and (mixer.gain_error_db or mixer.phase_error_deg):
         raise ParameterError("mixer.gain_error_db/phase_error_deg: only a quadrature mixer has imbalance (set mixer.kind = \"quadrature\")")
-    if abs(mixer.phase_error_deg) >= 90:
-        raise ParameterError(f"mixer.phase_error_deg: {mixer.phase_error_deg:g} must lie between -90 and 90")
     raw_stages = raw.get("if_stage", None)
     if raw_stages is None:
         stages = _default_stages()
@@ -544,9 +579,12 @@ def parse_spec(raw: Mapping, source: str = "<spec>", default_name: str | None = 
     else:
         if not isinstance(raw_stages, list) or not raw_stages:
             raise ParameterError("if_stage: expected one or more [[if_stage]] tables")
+        if len(raw_stages) > MAX_IF_STAGES:
+            raise ParameterError(f"if_stage: {len(raw_stages)} stages; at most {MAX_IF_STAGES} are supported")
         stages = tuple(_build_stage(t, i + 1, if_hz) for i, t in enumerate(raw_stages))
         if not any(s.agc for s in stages) and not any("agc" in t for t in raw_stages):
             stages = (dataclasses.replace(stages[0], agc=True),) + stages[1:]
+    _check_stage_totals(stages)
     agc = _build(AgcSpec, _table(raw, "agc"), _AGC_KEYS, "agc")
     if agc.min_gain_db > agc.max_gain_db:
         raise ParameterError(
@@ -567,14 +605,11 @@ def parse_spec(raw: Mapping, source: str = "<spec>", default_name: str | None = 
     if not 8000 <= audio.rate_hz <= 192000 or audio.rate_hz != int(audio.rate_hz):
         raise ParameterError(f"audio.rate: {audio.rate_hz:g} must be a whole number of Hz from 8000 to 192000")
     frontend = _build(FrontendSpec, _table(raw, "frontend"), _FRONTEND_KEYS, "frontend")
-    if frontend.noise_figure_db is not None:
-        check_noise_figure_db(frontend.noise_figure_db, "frontend.noise_figure_db")
     if detector.sideband != "both" and detector.kind != "synchronous":
         raise ParameterError(
             f"detector.sideband: {detector.sideband!r} needs kind = \"synchronous\" (kind is {detector.kind!r})"
         )
     blanker = _build(BlankerSpec, _table(raw, "blanker"), _BLANKER_KEYS, "blanker")
-    _check_ranges(blanker, _BLANKER_KEYS, _BLANKER_RANGES, "blanker")
     notch = _build(NotchSpec, _table(raw, "notch"), _NOTCH_KEYS, "notch")
     _check_notch(notch, audio)
     name = top.get("name", default_name or "custom")
@@ -606,8 +641,7 @@ def list_presets() -> list[tuple[str, str]]:
     """
     out = []
     for p in sorted(PRESET_DIR.glob("*.toml")):
-        with open(p, "rb") as fh:
-            raw = tomllib.load(fh)
+        raw = read_toml(p)
         out.append((p.stem, str(raw.get("description", raw.get("name", p.stem)))))
     return out
 
@@ -640,23 +674,24 @@ def load_chain(spec) -> ChainSpec:
     if isinstance(spec, Mapping):
         return parse_spec(spec, "<mapping>")
     text = str(spec)
+    shown = text if len(text) <= 80 else text[:77] + "..."
     path = Path(text)
-    if path.suffix.lower() != ".toml" and not path.exists():
-        preset = PRESET_DIR / f"{text}.toml"
-        if not preset.is_file():
-            names = ", ".join(n for n, _ in list_presets())
-            raise ParameterError(f"--chain {text}: no such preset or file (presets: {names})")
-        path = preset
-        default_name = text
-    else:
-        default_name = path.stem
-    if not path.is_file():
-        raise ParameterError(f"{path}: chain spec file not found")
     try:
-        with open(path, "rb") as fh:
-            raw = tomllib.load(fh)
-    except tomllib.TOMLDecodeError as exc:
-        raise ParameterError(f"{path}: not valid TOML ({exc})") from None
+        named_file = path.suffix.lower() == ".toml" or path.exists()
+        if not named_file:
+            preset = PRESET_DIR / f"{text}.toml"
+            if not preset.is_file():
+                names = ", ".join(n for n, _ in list_presets())
+                raise ParameterError(f"--chain {shown}: no such preset or file (presets: {names})")
+            path = preset
+            default_name = text
+        else:
+            default_name = path.stem
+        if not path.is_file():
+            raise ParameterError(f"{shown}: chain spec file not found")
+    except OSError as exc:
+        raise ParameterError(f"--chain {shown}: {exc.strerror}") from None
+    raw = read_toml(path)
     try:
         return parse_spec(raw, str(path), default_name=default_name)
     except ParameterError as exc:
@@ -674,8 +709,8 @@ def spec_to_dict(spec: ChainSpec) -> dict:
     """
     def inv(obj, keys):
         out = {}
-        for key, (fname, _kind) in keys.items():
-            out[key] = getattr(obj, fname)
+        for key, k in keys.items():
+            out[key] = getattr(obj, k.field)
         return out
 
     out = {

@@ -12,6 +12,7 @@ import importlib
 import click
 
 from .. import __version__
+from .common import SdrxGroup
 
 __all__ = ["main"]
 
@@ -28,7 +29,7 @@ _COMMANDS = {
 }
 
 
-class _LazyGroup(click.Group):
+class _LazyGroup(SdrxGroup):
     def list_commands(self, ctx):
         names = []
         for name in _COMMANDS:

@@ -4,12 +4,12 @@ from __future__ import annotations
 
 import click
 
-from .common import capture_kwargs, capture_options, correction_options, progress_for
+from .common import SdrxCommand, capture_kwargs, capture_options, correction_options, progress_for
 
 __all__ = ["command"]
 
 
-@click.command("band")
+@click.command("band", cls=SdrxCommand)
 @click.argument("captures", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @click.option("-o", "--output", "out", required=True, type=click.Path(file_okay=False),
               help="Folder for the station WAVs, band.json, log.csv and index.html.")

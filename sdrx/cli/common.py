@@ -9,20 +9,69 @@ import click
 from ..errors import SdrxError
 from ..progress import make_progress
 
-__all__ = ["run_cli", "capture_options", "capture_kwargs", "correction_options", "progress_for", "fail"]
+__all__ = ["one_line", "run_cli", "capture_options", "capture_kwargs", "correction_options", "progress_for", "fail",
+           "SdrxCommand", "SdrxGroup", "usage_line", "split_debug"]
 
 
 def _terminate(signum, frame):
     raise KeyboardInterrupt
 
 
-def run_cli(group, argv=None):
-    """Run the click group; map SdrxError (and a few OS errors) to exit 2.
+def one_line(text: str) -> str:
+    """A message as one printable line: line breaks and other control characters (which a file name or
+    a value from a file may hold) are shown as escapes.
 
-    SIGTERM is handled like Ctrl-C, so that writers remove their temporary
-    files on the way out.
+    Examples
+    --------
+    >>> one_line("bad name 'a\\nb\\x1b[31m'")
+    "bad name 'a\\\\nb\\\\x1b[31m'"
     """
-    debug = "--debug" in (argv if argv is not None else sys.argv[1:])
+    return "".join(c if c.isprintable() else repr(c)[1:-1] for c in str(text))
+
+
+def split_debug(argv):
+    """``--debug`` may stand anywhere on the line (before ``--``): take it out; return (argv, debug).
+
+    Examples
+    --------
+    >>> split_debug(["receive", "x.wav", "--debug", "--tune", "1M"])
+    (['receive', 'x.wav', '--tune', '1M'], True)
+    >>> split_debug(["info", "--", "--debug"])
+    (['info', '--', '--debug'], False)
+    """
+    args = list(argv)
+    end = args.index("--") if "--" in args else len(args)
+    debug = "--debug" in args[:end]
+    return [a for i, a in enumerate(args) if not (i < end and a == "--debug")], debug
+
+
+def usage_line(exc: click.ClickException) -> str:
+    """A click usage error as one line: the command, the problem, where to read more.
+
+    Examples
+    --------
+    >>> import click
+    >>> usage_line(click.UsageError("Missing option '--tune'."))
+    "Missing option '--tune'."
+    """
+    msg = " ".join(line.strip() for line in str(exc.format_message()).splitlines() if line.strip())
+    ctx = getattr(exc, "ctx", None)
+    if ctx is not None and ctx.command_path and ctx.command_path != "sdrx":
+        name = ctx.command_path[len("sdrx "):] if ctx.command_path.startswith("sdrx ") else ctx.command_path
+        return f"{name}: {msg} (see sdrx {name} --help)"
+    return msg
+
+
+def run_cli(group, argv=None):
+    """Run the click group; map SdrxError, click usage errors and OS errors to one line and exit 2.
+
+    ``--debug`` anywhere on the line shows the traceback instead. SIGTERM is
+    handled like Ctrl-C, so that writers remove their temporary files on the
+    way out.
+    """
+    argv, debug = split_debug(argv if argv is not None else sys.argv[1:])
+    if debug:
+        argv = ["--debug"] + argv
     import signal
     import threading
 
@@ -32,9 +81,14 @@ def run_cli(group, argv=None):
         rv = group.main(args=argv, prog_name="sdrx", standalone_mode=False)
     except click.exceptions.Exit as exc:
         return exc.exit_code
+    except click.exceptions.NoArgsIsHelpError as exc:
+        click.echo(exc.ctx.get_help() if exc.ctx is not None else str(exc))
+        sys.exit(2)
     except click.ClickException as exc:
-        exc.show()
-        sys.exit(exc.exit_code)
+        if debug:
+            raise
+        click.echo(f"sdrx: error: {one_line(usage_line(exc))}", err=True)
+        sys.exit(2)
     except click.Abort:
         click.echo("sdrx: interrupted", err=True)
         sys.exit(130)
@@ -44,16 +98,59 @@ def run_cli(group, argv=None):
     except SdrxError as exc:
         if debug:
             raise
-        click.echo(f"sdrx: error: {exc}", err=True)
+        click.echo(f"sdrx: error: {one_line(exc)}", err=True)
         sys.exit(2)
-    except (FileNotFoundError, IsADirectoryError, PermissionError) as exc:
+    except OSError as exc:
         if debug:
             raise
-        click.echo(f"sdrx: error: {exc.filename}: {exc.strerror}", err=True)
+        where = exc.filename if exc.filename is not None else "input/output"
+        shown = str(where) if len(str(where)) <= 80 else str(where)[:77] + "..."
+        click.echo(f"sdrx: error: {one_line(shown)}: {one_line(exc.strerror or exc)}", err=True)
         sys.exit(2)
     if isinstance(rv, int) and rv != 0:
         sys.exit(rv)
     return 0
+
+
+def _refuse_repeated(command: click.Command, ctx: click.Context, args) -> None:
+    """Refuse an option that takes one value when it is given more than once (the last would win silently)."""
+    parser = command.make_parser(ctx)
+    try:
+        _opts, _rest, order = parser.parse_args(args=list(args))
+    except click.UsageError:
+        return                      # the real parse reports it
+    seen = {}
+    for param in order:
+        if not isinstance(param, click.Option) or param.multiple or param.count or param.is_flag:
+            continue
+        seen[param.name] = seen.get(param.name, 0) + 1
+        if seen[param.name] == 2:
+            name = max(param.opts, key=len)
+            raise click.UsageError(f"{name} is given more than once; give it once", ctx=ctx)
+
+
+class SdrxCommand(click.Command):
+    """A click command that refuses a single-value option given twice (``--tune 600k --tune 880k``)."""
+
+    def parse_args(self, ctx, args):
+        _refuse_repeated(self, ctx, args)
+        return super().parse_args(ctx, args)
+
+
+class SdrxGroup(click.Group):
+    """A click group whose subcommands are :class:`SdrxCommand` (and its own options checked the same way)."""
+
+    command_class = SdrxCommand
+
+    def parse_args(self, ctx, args):
+        # only the group's own options, up to the subcommand's name
+        head = []
+        for a in args:
+            if not a.startswith("-"):
+                break
+            head.append(a)
+        _refuse_repeated(self, ctx, head)
+        return super().parse_args(ctx, args)
 
 
 def fail(message: str) -> None:

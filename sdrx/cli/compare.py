@@ -4,12 +4,12 @@ from __future__ import annotations
 
 import click
 
-from .common import capture_kwargs, capture_options, correction_options, progress_for
+from .common import SdrxCommand, capture_kwargs, capture_options, correction_options, progress_for
 
 __all__ = ["command"]
 
 
-@click.command("compare")
+@click.command("compare", cls=SdrxCommand)
 @click.argument("capture", metavar="CAPTURE")
 @click.argument("specs", nargs=-1, metavar="SPEC_A SPEC_B [SPEC_C ...]")
 @click.option("--tune", required=True, metavar="F", help="Tuned carrier, e.g. 1130k.")

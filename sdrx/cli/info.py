@@ -3,16 +3,17 @@
 from __future__ import annotations
 
 import json
+import math
 
 import click
 
-from ..analysis.survey import DEFAULT_THRESHOLD_DB, band_statistics, survey_statistics
+from ..analysis.survey import DEFAULT_SURVEY_SECONDS, DEFAULT_THRESHOLD_DB, band_statistics, survey_statistics
 from ..capture import open_capture
 from ..capture.impairments import CARRIER_TOLERANCE_HZ, estimate_from_statistics
 from ..units import format_frequency
 from ..errors import ParameterError
 from ..fileio import atomic_path, check_output
-from .common import capture_kwargs, capture_options, progress_for
+from .common import SdrxCommand, capture_kwargs, capture_options, progress_for
 
 __all__ = ["command", "format_info", "format_impairments"]
 
@@ -76,10 +77,13 @@ def format_info(info, result, first: int, count: int, impairments=None) -> str:
     lines.append(f"band      {_k(lo)}-{_k(hi)} kHz")
     if first != 0 or count != info.samples:
         lines.append(f"surveyed  {first / info.fs:.6g} s to {(first + count) / info.fs:.6g} s")
-    lines.append(
-        f"noise     {result.noise_floor_dbfs:.1f} dBFS per {result.rbw_hz:.4g} Hz bin; "
-        f"carriers are at least {result.threshold_db:.3g} dB above it"
-    )
+    if math.isfinite(result.noise_floor_dbfs):
+        lines.append(
+            f"noise     {result.noise_floor_dbfs:.1f} dBFS per {result.rbw_hz:.4g} Hz bin; "
+            f"carriers are at least {result.threshold_db:.3g} dB above it"
+        )
+    else:
+        lines.append("noise     none: every sample of the excerpt is zero")
     n = len(result.carriers)
     lines.append(f"carriers  {n} on the {_k(result.spacing_hz)} kHz grid" + (", strongest first:" if n else ""))
     if n:
@@ -92,7 +96,7 @@ def format_info(info, result, first: int, count: int, impairments=None) -> str:
     return "\n".join(lines)
 
 
-@click.command("info")
+@click.command("info", cls=SdrxCommand)
 @click.argument("capture", type=click.Path(dir_okay=False, path_type=str))
 @capture_options
 @click.option("--spacing", default="10k", show_default=True, metavar="HZ",
@@ -121,6 +125,11 @@ def command(capture, datatype, rate, center, start, duration, spacing, as_json, 
     reader = open_capture(capture, **capture_kwargs(datatype, rate, center))
     info = reader.info
     first, count = reader.sample_range(start, duration)
+    capped = duration is None and count > DEFAULT_SURVEY_SECONDS * info.fs
+    if capped:
+        # a long capture is surveyed over its first minute unless --duration asks for more
+        duration = DEFAULT_SURVEY_SECONDS
+        first, count = reader.sample_range(start, duration)
     png_path = None
     if spectrogram is not None:
         png_path = check_output(spectrogram, inputs=[info.path, info.data_path], force=force, option="--spectrogram")
@@ -145,6 +154,9 @@ def command(capture, datatype, rate, center, start, duration, spacing, as_json, 
         click.echo(json.dumps(data, indent=1, allow_nan=False))
     else:
         click.echo(format_info(info, result, first, count, impairments))
+        if capped:
+            click.echo(f"          (the first {DEFAULT_SURVEY_SECONDS:g} s of the excerpt by default; --duration S "
+                       "surveys more)")
 
 
 def band_spacing(spacing) -> float:

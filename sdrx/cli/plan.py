@@ -8,6 +8,7 @@ import click
 
 from ..analysis.plan import PRACTICAL_LOADED_Q, frequency_plan
 from ..errors import ParameterError
+from .common import SdrxCommand
 
 __all__ = ["command", "format_plan", "format_comparison"]
 
@@ -104,7 +105,7 @@ def format_comparison(plans) -> str:
     return "\n".join(lines)
 
 
-@click.command("plan")
+@click.command("plan", cls=SdrxCommand)
 @click.option("--if", "if_list", multiple=True, required=True, metavar="F",
               help="Intermediate frequency, e.g. 455k; repeat to compare several IFs side by side.")
 @click.option("--band", required=True, metavar="LO:HI", help="Band edges, e.g. 540k:1700k.")

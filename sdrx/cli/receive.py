@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from .common import capture_options, correction_options, progress_for
+from .common import SdrxCommand, capture_options, correction_options, one_line, progress_for
 
 __all__ = ["command"]
 
@@ -19,7 +19,7 @@ def _list_chains(ctx, _param, value):
     ctx.exit(0)
 
 
-@click.command("receive")
+@click.command("receive", cls=SdrxCommand)
 @click.argument("capture", type=click.Path(dir_okay=False), required=True)
 @click.option("--tune", required=True, metavar="F", help="Carrier frequency of the station, e.g. 1130k.")
 @click.option("--chain", default="medium", show_default=True, metavar="SPEC|PRESET",
@@ -76,7 +76,7 @@ def command(capture, tune, chain, out, summary, path, if_rate, full_scale_dbm, f
         if c["mean"] is not None else f"{out}: {s['output']['seconds']:.3f} s"
     )
     for w in s["warnings"]:
-        click.echo(f"warning: {w}", err=True)
+        click.echo(f"warning: {one_line(w)}", err=True)
     if summary:
         click.echo(f"summary: {summary}")
     return 0

@@ -4,12 +4,12 @@ from __future__ import annotations
 
 import click
 
-from .common import progress_for
+from .common import SdrxGroup, progress_for
 
 __all__ = ["command"]
 
 
-@click.group("refs")
+@click.group("refs", cls=SdrxGroup)
 def command():
     """Stored references: prove that a chain's output did not drift.
 
@@ -66,7 +66,9 @@ def record(cases, store, names, update, quiet):
 @click.option("--failures", "failures", default=None, metavar="DIR",
               help="Folder for difference WAVs and spectra of failing cases "
                    "[default: beside --junit as STEM-failures/, else beside the store as STORE-failures/].")
-@click.option("--force", is_flag=True, help="Replace an existing --junit file; write into an existing --failures folder.")
+@click.option("--force", is_flag=True,
+              help="Replace an existing --junit file; write into a --failures folder that holds files not made "
+                   "by sdrx (what an earlier verify wrote there is always replaced).")
 @click.option("--quiet", "-q", is_flag=True, help="No progress bar; failing cases and the count only.")
 def verify(cases, store, names, junit, failures, force, quiet):
     """Rerun each case and compare with its stored reference.

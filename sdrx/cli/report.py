@@ -5,12 +5,12 @@ from __future__ import annotations
 import click
 
 from ..errors import ParameterError
-from .common import capture_kwargs, capture_options, correction_options, progress_for
+from .common import SdrxCommand, capture_kwargs, capture_options, correction_options, progress_for
 
 __all__ = ["command"]
 
 
-@click.command("report")
+@click.command("report", cls=SdrxCommand)
 @click.argument("chain", metavar="SPEC|PRESET")
 @click.option("--tune", required=True, metavar="F", help="Tuned carrier, e.g. 1130k.")
 @click.option("--capture", "capture", default=None, metavar="CAPTURE",

@@ -4,12 +4,12 @@ from __future__ import annotations
 
 import click
 
-from .common import progress_for
+from .common import SdrxCommand, progress_for
 
 __all__ = ["command"]
 
 
-@click.command("synth")
+@click.command("synth", cls=SdrxCommand)
 @click.argument("scenario", metavar="SCENARIO.toml", type=click.Path(dir_okay=True, path_type=str))
 @click.option("-o", "--output", "out", required=True, metavar="OUT",
               help="Capture to write: NAME.sigmf-meta (SigMF pair) or NAME.wav; "

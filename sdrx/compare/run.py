@@ -21,7 +21,7 @@ from typing import Sequence
 import numpy as np
 
 from ..errors import OutputError, ParameterError
-from ..fileio import atomic_path, same_file
+from ..fileio import same_file, write_folder
 from ..units import format_frequency, parse_frequency, parse_seconds
 from . import blind as blind_mod
 from .align import align
@@ -218,7 +218,11 @@ def check_out_dir(out_dir, *, force: bool = False) -> set:
         if not parent.is_dir():
             raise OutputError(f"-o {d}: folder {parent} does not exist")
         return set()
-    entries = sorted(p.name for p in d.iterdir())
+    from ..fileset import clean_folder, is_own_temporary, recover
+
+    recover(d / MARKER)   # finish a comparison that was killed while its files were renamed
+    clean_folder(d)       # and remove what runs killed before their commit left
+    entries = sorted(p.name for p in d.iterdir() if not is_own_temporary(p.name))
     if not entries:
         return set()
     ours = _marker_files(d)
@@ -251,16 +255,15 @@ def _truth_tone(capture_path: Path, tune_hz: float):
     return single_tone_hz(capture_path, tune_hz)
 
 
-def _write_wav(path: Path, q: np.ndarray, fs: float) -> None:
+def _wav_bytes(q: np.ndarray, fs: float) -> bytes:
+    """16-bit PCM WAV file of the codes ``q`` (soundfile: a plain header, no time stamps)."""
+    import io
+
     import soundfile as sf
 
-    with atomic_path(path) as tmp:
-        sf.write(str(tmp), q, int(round(fs)), subtype="PCM_16", format="WAV")
-
-
-def _write_text(path: Path, text: str) -> None:
-    with atomic_path(path) as tmp:
-        tmp.write_text(text, encoding="utf-8")
+    buf = io.BytesIO()
+    sf.write(buf, q, int(round(fs)), subtype="PCM_16", format="WAV")
+    return buf.getvalue()
 
 
 def _plain(obj):
@@ -624,20 +627,18 @@ def write_comparison(out_dir, choices, designs, raw, rates, *, plan, tune_hz: fl
     })
 
     # ---- write ---------------------------------------------------------------------------
-    out.mkdir(exist_ok=True)
-    _write_text(out / MARKER, _json_text({"made_by": "sdrx compare", "files": sorted(new_files)}))
+    files = {MARKER: _json_text({"made_by": "sdrx compare", "files": sorted(new_files)}).encode("utf-8")}
     for name, q in zip(wav_names, quantized):
-        _write_wav(out / name, q, audio_fs)
+        files[name] = _wav_bytes(q, audio_fs)
     if plan.n:
         key = plan.key(labels)
         key["note"] = "X of each trial; the page shows this only when the key is revealed"
-        _write_text(out / KEY_FILE, _json_text(key))
-    _write_text(out / JSON_FILE, _json_text(result))
-    _write_text(out / PAGE_FILE, page)
-    for stale in sorted(old_files - set(new_files) - {MARKER}):
-        p = out / stale
-        if Path(stale).name == stale and stale not in (".", "..") and p.is_file():
-            p.unlink()
+        files[KEY_FILE] = _json_text(key).encode("utf-8")
+    files[JSON_FILE] = _json_text(result).encode("utf-8")
+    files[PAGE_FILE] = page.encode("utf-8")
+    stale = [out / name for name in sorted(old_files - set(new_files) - {MARKER})
+             if Path(name).name == name and name not in (".", "..") and (out / name).is_file()]
+    write_folder(out, files, head=MARKER, retire=stale)
     if progress_done is not None:
         progress_done()
     return result

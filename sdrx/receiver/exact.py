@@ -38,6 +38,7 @@ import scipy.fft as sfft
 from scipy import signal
 
 from ..errors import ParameterError
+from ..limits import MAX_IF_RATE_HZ, MAX_IF_RATE_RATIO
 from ..units import format_frequency
 from ..dsp.channelizer import ChannelSpec, Channelizer, passband_window, plan_channelizer
 from ..dsp.discretize import matched_z
@@ -119,7 +120,22 @@ def resolve_if_rate(design, plan, info, tune_hz: float, if_rate_hz=None) -> floa
                 f"--if-rate {fs_if:.10g}: not a usable IF sample rate for the capture rate {format_frequency(info.fs)} "
                 f"(use a multiple of {info.fs / 512:g} Hz, such as the automatic {auto:.10g})"
             )
+    _check_if_rate(fs_if, info.fs, if_rate_hz is None)
     return fs_if
+
+
+def _check_if_rate(fs_if: float, fs: float, automatic: bool) -> None:
+    """The IF sample rate's bounds (:mod:`sdrx.limits`): each capture block becomes fs_if/fs times as
+    many IF samples, held while they are mixed and filtered."""
+    what = "the automatic IF sample rate" if automatic else "--if-rate"
+    hint = "; the fast path has no IF sample rate (--path fast)"
+    if fs_if > MAX_IF_RATE_HZ:
+        raise ParameterError(f"--path exact: {what} {format_frequency(fs_if)} is above {format_frequency(MAX_IF_RATE_HZ)}"
+                             f"{hint}")
+    if fs_if > MAX_IF_RATE_RATIO * fs:
+        raise ParameterError(
+            f"--path exact: {what} {format_frequency(fs_if)} is {fs_if / fs:.4g} times the capture rate "
+            f"{format_frequency(fs)}; at most {MAX_IF_RATE_RATIO} times (memory per block){hint}")
 
 
 class _RfSynthesizer:

@@ -129,8 +129,13 @@ class _Group:
         # as FastFrontEnd.flush: P zeros through the channels, then the bank's own flush
         a = self.bank.process(np.zeros(self.bank.plan.overlap, self.bank.dtype))
         b = self.bank.flush()
-        return [np.concatenate([rx.banked.combine([a[r] for r in rows]), rx.banked.combine([b[r] for r in rows])])
-                for rx, rows in zip(self.members, self.rows)]
+        out = []
+        for rx, rows in zip(self.members, self.rows):
+            fe = rx.banked.front
+            parts = [rx.banked.combine([a[r] for r in rows]), rx.banked.combine([b[r] for r in rows])]
+            rest, fe._held = fe._held, np.zeros(0, complex)   # a long chain's delay line, as FastFrontEnd.flush
+            out.append(np.concatenate(parts + [rest]))
+        return out
 
 
 class MultiReceiver:

@@ -26,6 +26,9 @@ __all__ = ["Receiver", "PATHS", "channel_rate"]
 
 PATHS = ("fast", "exact")
 
+#: largest numerator × denominator of the channel-to-audio rate ratio (the resampler's FIR has 2·that + 1 taps)
+MAX_RESAMPLE_TERMS = 20000
+
 
 def channel_rate(audio_rate_hz: float, fs: float) -> float:
     """The rate the detector and AGC run at: a multiple of the audio rate of at least 88 kHz.
@@ -37,6 +40,34 @@ def channel_rate(audio_rate_hz: float, fs: float) -> float:
     """
     r = math.ceil(88000.0 / audio_rate_hz)
     return float(min(audio_rate_hz * r, fs))
+
+
+def _check_channel_holds_audio(plan, design, info) -> None:
+    """The channel (flat to plan.f_pass_hz) must pass the audio band, else its top is cut silently; and the
+    IF must be high enough that its mirror (2·IF away) stays outside the channel."""
+    if 2 * design.if_hz < plan.fs_ch:
+        raise ParameterError(
+            f"if_frequency {format_frequency(design.if_hz)}: too low for the channel rate {format_frequency(plan.fs_ch)} "
+            f"(audio.rate {format_frequency(design.audio.rate_hz)}): the IF's mirror, 2·IF away, would fall inside the "
+            f"channel; use an IF of at least {format_frequency(plan.fs_ch / 2)} or a lower audio.rate")
+    from fractions import Fraction
+
+    r = (Fraction(design.audio.rate_hz).limit_denominator(10000)
+         / Fraction(plan.fs_ch).limit_denominator(10000)).limit_denominator(1000)
+    if r.numerator * r.denominator > MAX_RESAMPLE_TERMS:
+        raise ParameterError(
+            f"{getattr(info, 'path', 'capture')}: rate {format_frequency(info.fs)} gives a channel rate "
+            f"{format_frequency(plan.fs_ch)} whose ratio to audio.rate {format_frequency(design.audio.rate_hz)} is "
+            f"{r.numerator}/{r.denominator}; the resampler takes ratios up to {MAX_RESAMPLE_TERMS} in "
+            f"numerator × denominator (a capture rate of at least {format_frequency(channel_rate(design.audio.rate_hz, 1e12))} "
+            "always works)")
+    top = design.audio.lowpass_hz
+    if plan.f_pass_hz < top:
+        need = top / (plan.f_pass_hz / plan.fs_ch)
+        raise ParameterError(
+            f"{getattr(info, 'path', 'capture')}: rate {format_frequency(info.fs)} is too low for this chain: its "
+            f"channel is flat only to {format_frequency(plan.f_pass_hz)}, below audio.lowpass {format_frequency(top)}; "
+            f"a capture rate of at least {format_frequency(need)} is needed")
 
 
 class Receiver:
@@ -102,6 +133,7 @@ class Receiver:
         fs_ch = channel_rate(design.audio.rate_hz, info.fs)
         self.plan = plan_channelizer(info.fs, fs_ch)
         self.fs_ch = self.plan.fs_ch
+        _check_channel_holds_audio(self.plan, design, info)
         edge = design.audio.lowpass_hz
         if tune_hz - edge < lo or tune_hz + edge > hi:
             self.warnings.append(

@@ -33,18 +33,13 @@ every float32 sample equal).
 from __future__ import annotations
 
 import re
-import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Optional
 
 from ..errors import CaptureError, ParameterError
+from ..tomlfile import read_toml
 from ..units import parse_frequency, parse_seconds
-
-if sys.version_info >= (3, 11):
-    import tomllib
-else:  # pragma: no cover - exercised on Python 3.10 only
-    import tomli as tomllib
 
 __all__ = [
     "DEFAULT_SNR_DB",
@@ -329,12 +324,7 @@ def load_cases(path) -> CasesFile:
     p = Path(path)
     if not p.is_file():
         raise CaptureError(f"cases file {p}: no such file")
-    try:
-        data = tomllib.loads(p.read_text(encoding="utf-8"))
-    except tomllib.TOMLDecodeError as exc:
-        raise ParameterError(f"cases file {p}: not valid TOML ({exc})") from None
-    except UnicodeDecodeError:
-        raise ParameterError(f"cases file {p}: not UTF-8 text") from None
+    data = read_toml(p, "cases file")
     unknown = sorted(set(data) - {"case"})
     if unknown:
         raise ParameterError(f"cases file {p}: unknown top-level key {unknown[0]!r}; allowed: case ([[case]] tables)")

@@ -33,7 +33,8 @@ from typing import Optional
 import numpy as np
 
 from ..errors import CaptureError
-from ..fileio import atomic_path
+from ..capture.wavio import WavStream
+from ..fileio import member_path
 
 __all__ = [
     "OCTAVE_CENTRES_HZ",
@@ -550,8 +551,10 @@ def tone_sinad_db(path, tone_hz: float, *, skip_s: Optional[float] = None) -> fl
     return _ratio_db(ac, residual)
 
 
-def write_difference(ref_path, new_path, out_path) -> Path:
+def write_difference(ref_path, new_path, out_path, outputs=None) -> Path:
     """Write ``new − ref`` as a float WAV (the shorter file padded with zeros).
+
+    ``outputs``: an :class:`~sdrx.fileset.OutputSet` the file joins (default: a set of its own).
 
     Raises
     ------
@@ -568,31 +571,34 @@ def write_difference(ref_path, new_path, out_path) -> Path:
     >>> sf.read(diff)[0].tolist() == [0.25] * 12
     True
     """
-    import soundfile as sf
 
     out = Path(out_path)
     with _open(ref_path) as fr, _open(new_path) as fn:
         if fr.samplerate != fn.samplerate or fr.channels != fn.channels:
             raise CaptureError(f"{new_path}: rate/channels differ from {ref_path}; no difference file written")
-        with atomic_path(out) as tmp:
-            with sf.SoundFile(str(tmp), "w", samplerate=fr.samplerate, channels=fr.channels,
-                              subtype="FLOAT", format="WAV") as w:
-                gr, gn = _blocks(fr), _blocks(fn)
-                while True:
-                    br, bn = next(gr, None), next(gn, None)
-                    if br is None and bn is None:
-                        break
-                    m = max(0 if br is None else br.shape[0], 0 if bn is None else bn.shape[0])
-                    d = np.zeros((m, fr.channels))
-                    if bn is not None:
-                        d[: bn.shape[0]] += bn
-                    if br is not None:
-                        d[: br.shape[0]] -= br
-                    w.write(d)
+        # sdrx's own WAV writer: libsndfile stamps float files with the time of writing (PEAK chunk)
+        w = WavStream(out, fr.samplerate, fr.channels, "float32", outputs=outputs)
+        try:
+            gr, gn = _blocks(fr), _blocks(fn)
+            while True:
+                br, bn = next(gr, None), next(gn, None)
+                if br is None and bn is None:
+                    break
+                m = max(0 if br is None else br.shape[0], 0 if bn is None else bn.shape[0])
+                d = np.zeros((m, fr.channels))
+                if bn is not None:
+                    d[: bn.shape[0]] += bn
+                if br is not None:
+                    d[: br.shape[0]] -= br
+                w.write_codes(d.astype("<f4").reshape(-1))
+        except BaseException:
+            w.abort()
+            raise
+        w.close()
     return out
 
 
-def plot_spectra(comparison: Comparison, out_path, title: str) -> Path:
+def plot_spectra(comparison: Comparison, out_path, title: str, outputs=None) -> Path:
     """A small PNG of the reference, new and difference spectra and the octave-band changes.
 
     Parameters
@@ -603,6 +609,8 @@ def plot_spectra(comparison: Comparison, out_path, title: str) -> Path:
         PNG file, written atomically.
     title : str
         Plot title (the case name).
+    outputs : OutputSet, optional
+        The set the PNG joins (written into its temporary, renamed with the set).
 
     Returns
     -------
@@ -634,6 +642,6 @@ def plot_spectra(comparison: Comparison, out_path, title: str) -> Path:
     ax.grid(True, which="both", alpha=0.3)
     ax.legend(fontsize=8)
     fig.tight_layout()
-    with atomic_path(out) as tmp:
+    with member_path(out, outputs) as tmp:
         fig.savefig(tmp, format="png", metadata={"Software": None})
     return out

@@ -157,10 +157,15 @@ def truth_tone_hz(capture: Path, tune_hz: float) -> Optional[float]:
 def dict_differences(old, new, prefix: str = "", limit: int = 5) -> list:
     """Key paths at which two JSON values differ (at most ``limit``).
 
+    List items count from 1, as the chain spec's validation messages and the
+    report do: ``if_stage[1]`` is the first ``[[if_stage]]`` table.
+
     Examples
     --------
     >>> dict_differences({"a": 1, "b": {"c": 2}}, {"a": 1, "b": {"c": 3}})
     ['b.c: 2 -> 3']
+    >>> dict_differences({"if_stage": [{"q": 60}]}, {"if_stage": [{"q": 50}]})
+    ['if_stage[1].q: 60 -> 50']
     """
     out = []
 
@@ -172,7 +177,7 @@ def dict_differences(old, new, prefix: str = "", limit: int = 5) -> list:
                 walk(a.get(k, "<absent>"), b.get(k, "<absent>"), f"{path}.{k}" if path else str(k))
         elif isinstance(a, list) and isinstance(b, list) and len(a) == len(b):
             for i, (x, y) in enumerate(zip(a, b)):
-                walk(x, y, f"{path}[{i}]")
+                walk(x, y, f"{path}[{i + 1}]")
         elif a != b:
             out.append(f"{path or '(root)'}: {a!r} -> {b!r}")
 

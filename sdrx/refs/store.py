@@ -23,12 +23,13 @@ The manifest is JSON (keys sorted, two-space indent, no NaN)::
   power), the chain's audio bandwidth (Hz, :mod:`sdrx.analysis.audio_response`),
   octave band levels, SINAD (null without a single-tone truth sidecar).
 
-Writes are atomic per case: the new WAV is written under a temporary name and
-renamed to its content-addressed name (so it never replaces the WAV the
-manifest still points at), then the whole manifest is written to a temporary
-file and renamed, and only then is the case's previous WAV removed. An
-interruption at any point leaves a manifest that is whole and points at WAVs
-that exist and match it. A reader checks each WAV against the size and SHA-256
+Writes are atomic per case, one :class:`sdrx.fileset.OutputSet`: the new WAV
+is written under a temporary name and renamed to its content-addressed name
+(so it never replaces the WAV the manifest still points at), then the whole
+manifest is renamed into place, and only then is the case's previous WAV
+removed. An interruption at any point leaves a manifest that is whole and
+points at WAVs that exist and match it (a commit interrupted between the
+renames is finished by the next record into the store). A reader checks each WAV against the size and SHA-256
 in the manifest, so a truncated or corrupted reference is found before any
 comparison.
 """
@@ -44,7 +45,8 @@ from pathlib import Path
 from typing import Optional
 
 from ..errors import CaptureError, OutputError, ParameterError
-from ..fileio import atomic_path
+from ..fileio import check_free_space
+from ..fileset import OutputSet, clean_folder, is_own_temporary, recover
 
 __all__ = [
     "MANIFEST_NAME",
@@ -223,9 +225,11 @@ class Store:
         if p.exists() and not p.is_dir():
             raise ParameterError(f"--store {p}: is a file, expected a folder")
         if p.is_dir():
+            recover(p / MANIFEST_NAME)    # finish a record that was killed between its renames
+            clean_folder(p)               # and remove what records killed earlier left
             if (p / MANIFEST_NAME).is_file():
                 return cls(p, cls._read_manifest(p), True)
-            if any(p.iterdir()):
+            if any(not is_own_temporary(q.name) for q in p.iterdir()):
                 raise ParameterError(f"--store {p}: folder is not empty and is not an sdrx reference store "
                                      f"(no {MANIFEST_NAME}); choose an empty or new folder")
         else:
@@ -356,31 +360,37 @@ class Store:
         digest = file_sha256(audio_src)
         rel = f"{name}.{digest[:12]}.wav"
         dest = self.inside(rel, f"case {name!r}")
-        with atomic_path(dest) as tmp:
-            shutil.copyfile(audio_src, tmp)
-            if file_sha256(tmp) != digest:
-                raise OutputError(f"--store {self.path}: copy of {audio_src} does not match its source")
-            info = sf.info(str(tmp))
-            audio = {"file": rel, "sha256": digest, "bytes": os.path.getsize(tmp),
+        check_free_space(dest, os.path.getsize(audio_src), option="--store")
+        # one set: the WAV under its content-addressed name (it never replaces a WAV the manifest
+        # still names), the manifest renamed last, then the case's previous WAV retired
+        with OutputSet(self.manifest_path, option="--store") as outputs:
+            if dest.is_file() and file_sha256(dest) == digest:
+                stored = dest                     # the same audio is stored already
+            else:
+                stored = outputs.add(dest)
+                shutil.copyfile(audio_src, stored)
+                if file_sha256(stored) != digest:
+                    raise OutputError(f"--store {self.path}: copy of {audio_src} does not match its source")
+            info = sf.info(str(stored))
+            audio = {"file": rel, "sha256": digest, "bytes": os.path.getsize(stored),
                      "fs": float(info.samplerate), "channels": info.channels, "samples": info.frames,
                      "subtype": info.subtype}
-        entry = dict(entry)
-        entry["audio"] = audio
-        # re-read the manifest so a concurrent record of another case is not lost
-        current = self._read_manifest(self.path) if self.manifest_path.is_file() else self.manifest
-        old = current["cases"].get(name)
-        current["cases"][name] = entry
-        with atomic_path(self.manifest_path) as tmp:
-            tmp.write_text(_dump(current), encoding="utf-8")
+            entry = dict(entry)
+            entry["audio"] = audio
+            # re-read the manifest so a concurrent record of another case is not lost
+            current = self._read_manifest(self.path) if self.manifest_path.is_file() else self.manifest
+            old = current["cases"].get(name)
+            current["cases"][name] = entry
+            outputs.add(self.manifest_path).write_text(_dump(current), encoding="utf-8")
+            old_file = old.get("audio", {}).get("file") if isinstance(old, dict) else None
+            still_used = {e.get("audio", {}).get("file") for e in current["cases"].values() if isinstance(e, dict)}
+            if isinstance(old_file, str) and old_file not in still_used:
+                try:
+                    stale = self.inside(old_file, f"case {name!r}")
+                except ParameterError:
+                    stale = None                # never delete outside the store
+                if stale is not None and stale.is_file():
+                    outputs.retire(stale)
         self.manifest = current
         self.exists = True
-        old_file = old.get("audio", {}).get("file") if isinstance(old, dict) else None
-        still_used = {e.get("audio", {}).get("file") for e in current["cases"].values() if isinstance(e, dict)}
-        if isinstance(old_file, str) and old_file not in still_used:
-            try:
-                stale = self.inside(old_file, f"case {name!r}")
-            except ParameterError:
-                stale = None                # never delete outside the store
-            if stale is not None and stale.is_file():
-                stale.unlink()
         return dest

@@ -23,6 +23,8 @@ report as ``<report stem>-failures/``; otherwise beside the store as
 
 from __future__ import annotations
 
+import contextlib
+import json
 import math
 import time
 from dataclasses import dataclass, field
@@ -137,16 +139,103 @@ def _version_notes(recorded: dict, now: dict) -> list:
     return out
 
 
-def _check_failures_dir(path: Path, force: bool) -> None:
+#: marks a failures folder as written by sdrx (JSON listing the files of the last run)
+FAILURES_MARKER = ".sdrx-failures"
+_ARTIFACT_SUFFIXES = (".diff.wav", ".spectra.png")
+
+
+def _failures_marker_files(d: Path) -> set:
+    try:
+        raw = json.loads((d / FAILURES_MARKER).read_text(encoding="utf-8"))
+        files = raw["files"]
+    except (OSError, ValueError, KeyError, TypeError):
+        return set()
+    if not isinstance(files, list):
+        return set()
+    return {f for f in files if isinstance(f, str) and Path(f).name == f and f not in (".", "..")}
+
+
+def check_failures_dir(path: Path, force: bool) -> set:
+    """Check the failures folder before any work; return the files an earlier run of sdrx left there.
+
+    The folder is sdrx's own: what an earlier verify wrote (listed in its
+    marker, or named ``<case>.diff.wav`` / ``<case>.spectra.png``) is
+    replaced. Files of other origin are refused unless ``force``.
+
+    Raises
+    ------
+    OutputError
+        A file where the folder should be; a missing parent folder; files
+        not made by sdrx without ``force``.
+    """
+    from ..fileset import clean_folder, is_own_temporary, recover
+
     if path.exists():
         if not path.is_dir():
             raise OutputError(f"--failures {path}: is a file, expected a folder")
-        if not force:
-            raise OutputError(f"--failures {path}: exists already; pass --force to write into it")
-    else:
-        parent = path.parent if str(path.parent) else Path(".")
-        if not parent.is_dir():
-            raise OutputError(f"--failures {path}: folder {parent} does not exist")
+        recover(path / FAILURES_MARKER)
+        clean_folder(path)
+        listed = _failures_marker_files(path)
+        ours, foreign = set(), []
+        for p in sorted(path.iterdir(), key=lambda q: q.name):
+            name = p.name
+            if is_own_temporary(name) or name == FAILURES_MARKER:
+                continue
+            if p.is_file() and (name in listed or name.endswith(_ARTIFACT_SUFFIXES)):
+                ours.add(name)
+            else:
+                foreign.append(name)
+        if foreign and not force:
+            shown = ", ".join(foreign[:3]) + (", ..." if len(foreign) > 3 else "")
+            raise OutputError(f"--failures {path}: holds files not made by sdrx ({shown}); choose another "
+                              "folder, or pass --force to write beside them")
+        return ours
+    parent = path.parent if str(path.parent) else Path(".")
+    if not parent.is_dir():
+        raise OutputError(f"--failures {path}: folder {parent} does not exist")
+    return set()
+
+
+class _Failures:
+    """The failures folder of one verify run: artifacts collected as one set, committed at the end."""
+
+    def __init__(self, folder: Path, old_files: set):
+        from ..fileset import OutputSet
+
+        self.folder = folder
+        self.old = old_files
+        self.new: list = []
+        self.outputs = OutputSet(folder / FAILURES_MARKER, option="--failures")
+        self._created = False
+
+    def path(self, name: str) -> Path:
+        """Final path of an artifact (the folder is created when the first one is written)."""
+        if not self.folder.exists():
+            self.folder.mkdir()
+            self._created = True
+        self.new.append(name)
+        return self.folder / name
+
+    def commit(self) -> None:
+        """Replace the earlier run's files by this run's (the marker last); nothing left when all pass."""
+        for name in sorted(self.old - set(self.new)):
+            self.outputs.retire(self.folder / name)
+        marker = self.folder / FAILURES_MARKER
+        if self.new:
+            text = json.dumps({"made_by": "sdrx refs verify", "files": sorted(self.new)}, indent=1) + "\n"
+            self.outputs.add(marker).write_text(text, encoding="utf-8")
+        elif marker.is_file():
+            self.outputs.retire(marker)
+        self.outputs.commit()
+        if not self.new and self.folder.is_dir():
+            with contextlib.suppress(OSError):
+                self.folder.rmdir()     # only when empty
+
+    def abort(self) -> None:
+        self.outputs.abort()
+        if self._created:
+            with contextlib.suppress(OSError):
+                self.folder.rmdir()
 
 
 def verify_cases(cases_file, store, *, names=None, junit=None, failures_dir=None, force: bool = False,
@@ -222,7 +311,21 @@ def verify_cases(cases_file, store, *, names=None, junit=None, failures_dir=None
         junit_path = check_output(junit, inputs=[cf.path, st.manifest_path, *refs.values()], force=force,
                                   option="--junit")
     fdir = Path(failures_dir) if failures_dir is not None else default_failures_dir(st.path, junit_path)
-    _check_failures_dir(fdir, force)
+    failures = _Failures(fdir, check_failures_dir(fdir, force))
+    try:
+        results = _run_cases(prepared, st, refs, failures, on_result, progress)
+    except BaseException:
+        failures.abort()
+        raise
+    failures.commit()
+    report = VerifyReport(cases_file=cf.path, store=st.path, results=tuple(results),
+                          failures_dir=fdir, junit=junit_path)
+    if junit_path is not None:
+        _write_junit(junit_path, results, cf.path)
+    return report
+
+
+def _run_cases(prepared, st, refs, failures, on_result, progress) -> list:
     now = versions()
     results = []
     for i, prep in enumerate(prepared):
@@ -257,10 +360,11 @@ def verify_cases(cases_file, store, *, names=None, junit=None, failures_dir=None
                 cmp = compare_audio(refs[case.name], wav, case.tolerance)
                 artifacts = []
                 if not cmp.passed:
-                    fdir.mkdir(exist_ok=True)
                     if cmp.fs_ref == cmp.fs_new and cmp.samples_ref and cmp.samples_new:
-                        artifacts.append(write_difference(refs[case.name], wav, fdir / f"{case.name}.diff.wav"))
-                    artifacts.append(plot_spectra(cmp, fdir / f"{case.name}.spectra.png", f"{case.name}: reference vs new"))
+                        artifacts.append(write_difference(refs[case.name], wav, failures.path(f"{case.name}.diff.wav"),
+                                                          failures.outputs))
+                    artifacts.append(plot_spectra(cmp, failures.path(f"{case.name}.spectra.png"),
+                                                  f"{case.name}: reference vs new", failures.outputs))
             res = CaseResult(name=case.name, status="pass" if cmp.passed else "fail",
                              summary=_figures_summary(case.tolerance, cmp), problems=cmp.problems,
                              notes=tuple(notes), figures=cmp.to_json(), artifacts=tuple(artifacts),
@@ -270,17 +374,17 @@ def verify_cases(cases_file, store, *, names=None, junit=None, failures_dir=None
             on_result(res)
         if progress is not None:
             progress(i + 1, len(prepared))
-    report = VerifyReport(cases_file=cf.path, store=st.path, results=tuple(results),
-                          failures_dir=fdir, junit=junit_path)
-    if junit_path is not None:
-        jcases = []
-        for r in results:
-            ftype = None if r.passed else ("capture-changed" if r.status == "changed" else "regression")
-            details = r.line()
-            if r.artifacts:
-                details += "\n" + "\n".join(f"see {a}" for a in r.artifacts)
-            jcases.append(JUnitCase(name=r.name, time_s=r.time_s, failure_type=ftype,
-                                    message=r.line() if ftype else "", details=details if ftype else "",
-                                    notes=r.notes))
-        write_junit(junit_path, jcases, f"sdrx refs {cf.path.name}", f"sdrx.refs.{cf.path.stem}")
-    return report
+    return results
+
+
+def _write_junit(junit_path, results, cases_path) -> None:
+    jcases = []
+    for r in results:
+        ftype = None if r.passed else ("capture-changed" if r.status == "changed" else "regression")
+        details = r.line()
+        if r.artifacts:
+            details += "\n" + "\n".join(f"see {a}" for a in r.artifacts)
+        jcases.append(JUnitCase(name=r.name, time_s=r.time_s, failure_type=ftype,
+                                message=r.line() if ftype else "", details=details if ftype else "",
+                                notes=r.notes))
+    write_junit(junit_path, jcases, f"sdrx refs {cases_path.name}", f"sdrx.refs.{cases_path.stem}")

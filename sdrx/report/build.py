@@ -18,7 +18,8 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import OutputError, ParameterError
-from ..fileio import atomic_path, check_output
+from ..fileio import check_output, write_folder
+from ..limits import MAX_POINTS, MIN_POINTS
 from ..units import format_frequency
 from ..analysis import selectivity as sel
 from ..analysis.agc_figures import measure_agc
@@ -29,6 +30,10 @@ GROUP_DELAY_METHOD = ("numerical derivative of the analog responses' phase: cent
                       "IF stages with respect to the IF frequency, preselector with respect to RF, summed")
 MEASURE_METHOD = ("single-signal method (ITU-R SM.332): one unmodulated test carrier at a time, AGC held, "
                   "carrier level at the detector, relative to the level of a carrier at the tune")
+
+#: Every file a report may hold (the figures depend on --capture).
+KNOWN_FILES = ("report.json", "report.html", "selectivity.png", "stages.png", "image.png", "group_delay.png",
+               "spectrum.png")
 
 #: Carriers within this many channel spacings of the tune are listed (and any near the image).
 NEAR_CHANNELS = 5
@@ -169,8 +174,9 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
     tune, spacing = sel.validate_tuning(design, tune, spacing)
     if path not in ("fast", "exact"):
         raise ParameterError(f"--path {path!r}: choose fast or exact")
-    if not isinstance(points, int) or points < 7:
-        raise ParameterError(f"--points {points!r}: must be a whole number >= 7")
+    if isinstance(points, bool) or not isinstance(points, int) or not MIN_POINTS <= points <= MAX_POINTS:
+        raise ParameterError(f"--points {points!r}: must be a whole number from {MIN_POINTS} to {MAX_POINTS} "
+                             "(each point is a receiver run)")
     reader = None
     if capture is not None:
         from ..capture import open_capture
@@ -330,12 +336,10 @@ def write_report(report: Report, out_dir, *, force=False, inputs=()) -> list:
             check_output(p, inputs=inputs, force=force, option="-o")
     text = json.dumps(report.data, indent=1, allow_nan=False) + "\n"
     page = render_html(report.data, report.figures)
-    d.mkdir(exist_ok=True)
-    payload = {"report.json": text.encode(), "report.html": page.encode()}
+    payload = {p.name: None for p in files}
+    payload.update({"report.json": text.encode(), "report.html": page.encode()})
     payload.update(report.figures)
-    written = []
-    for p in files:
-        with atomic_path(p) as tmp:
-            tmp.write_bytes(payload[p.name])
-        written.append(p)
+    # figures of an earlier report that this one does not draw (spectrum.png without --capture)
+    stale = [d / name for name in KNOWN_FILES if name not in payload and (d / name).is_file()]
+    written = write_folder(d, payload, head="report.html", retire=stale)
     return written

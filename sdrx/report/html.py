@@ -98,6 +98,9 @@ def _selectivity_table(data):
         row(f"adjacent-channel rejection at {off:+g} kHz, dB", f"adjacent_rejection_db.{k}")
     row("image rejection, dB", "image_rejection_db")
     out = "<table>" + "".join(rows) + "</table>"
+    if data["designed"].get("image_rejection_db") is None:
+        out += ('<p class="note">Image rejection: infinite. The chain has no image response at all (an ideal '
+                'quadrature mixer, no gain or phase error); report.json holds null.</p>')
     if has_m:
         out += ('<p class="note">Largest difference between measured and designed points down to -80 dB: '
                 '<span data-key="measured.difference.max_abs_db_down_to_80">%s</span> dB.</p>'

@@ -70,10 +70,17 @@ def _figure():
 
 
 def _png(fig, ctx) -> bytes:
+    import warnings
+
     buf = io.BytesIO()
     try:
-        fig.tight_layout()
-        fig.savefig(buf, format="png", dpi=_DPI, metadata={"Software": None})
+        with warnings.catch_warnings():
+            # titles carry the chain's name: a character the font lacks is drawn as a box, and a title
+            # too long for tight_layout keeps the default layout; neither is worth a warning on stderr
+            warnings.filterwarnings("ignore", r"Glyph .* missing from", UserWarning)
+            warnings.filterwarnings("ignore", r"Tight layout not applied", UserWarning)
+            fig.tight_layout()
+            fig.savefig(buf, format="png", dpi=_DPI, metadata={"Software": None})
     finally:
         ctx.__exit__(None, None, None)
     return buf.getvalue()
@@ -182,11 +189,19 @@ def image_png(designed, measured, image_offset_hz, spacing_hz, image_rejection_d
         ms = np.abs(m[:, 0] - image_offset_hz) <= span
         ax.plot((m[ms, 0] - image_offset_hz) / 1e3, np.maximum(m[ms, 1], floor_db), ls="none", marker="o",
                 ms=4.5, mfc="none", color=OKABE_ITO["vermillion"], label="measured")
-    ax.axhline(-image_rejection_db, color=OKABE_ITO["green"], ls="--", lw=1,
-               label=f"image rejection {image_rejection_db:.1f} dB")
+    if image_rejection_db is None:
+        # no image response at all (an ideal quadrature mixer): infinite rejection, nothing to draw
+        ax.plot([], [], color=OKABE_ITO["green"], ls="--", lw=1, label="image rejection infinite (no image response)")
+        level = floor_db
+    else:
+        ax.axhline(-image_rejection_db, color=OKABE_ITO["green"], ls="--", lw=1,
+                   label=f"image rejection {image_rejection_db:.1f} dB")
+        level = -image_rejection_db
     ax.set_xlim(-3 * spacing_hz / 1e3, 3 * spacing_hz / 1e3)
-    lo = min(float(np.nanmin(np.maximum(d[sel, 1], floor_db))) - 10, -image_rejection_db - 20)
-    ax.set_ylim(max(lo, floor_db), max(-image_rejection_db + 30, 5))
+    finite = np.maximum(d[sel, 1], floor_db)
+    finite = finite[np.isfinite(finite)]
+    lo = min((float(finite.min()) if finite.size else floor_db) - 10, level - 20)
+    ax.set_ylim(max(lo, floor_db), max(level + 30, 5))
     ax.set_xlabel(f"offset from the image frequency ({image_offset_hz / 1e3:+g} kHz from the tune), kHz")
     ax.set_ylabel("response relative to tuned carrier, dB")
     ax.set_title(title or "Image region")

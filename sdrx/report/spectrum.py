@@ -42,8 +42,11 @@ def capture_spectrum(reader, resolution_hz, *, start_s=0.0, duration_s=None, max
     """
     info = reader.info
     fs = float(info.fs)
-    nfft = 1 << max(8, int(math.ceil(math.log2(fs / resolution_hz))))
-    dur = max_s if duration_s is None else min(float(duration_s), max_s)
+    from ..limits import MAX_SURVEY_BINS
+
+    nfft = min(1 << max(8, int(math.ceil(math.log2(fs / resolution_hz)))), MAX_SURVEY_BINS)
+    _first, avail = reader.sample_range(start_s, duration_s)
+    dur = min(avail / fs, max_s)
     win = np.hanning(nfft)
     wsum = float(win.sum())
     iq = info.kind == "iq"

@@ -37,12 +37,8 @@ import hashlib
 from dataclasses import dataclass
 from pathlib import Path
 
-try:
-    import tomllib
-except ModuleNotFoundError:  # Python 3.10
-    import tomli as tomllib
-
 from ..errors import CaptureError, ParameterError
+from ..tomlfile import read_toml
 from ..units import format_frequency, parse_seconds
 from ._keys import check_keys, get_choice, get_db, get_frequency, get_int, get_number, get_seconds
 from .fading import FadingSpec, parse_fading
@@ -253,16 +249,7 @@ def load_scenario(path) -> Scenario:
         raise CaptureError(f"{p}: scenario file not found")
     if p.is_dir():
         raise CaptureError(f"{p}: is a folder, expected a scenario TOML file")
-    try:
-        raw = p.read_bytes()
-    except OSError as exc:
-        raise CaptureError(f"{p}: cannot read: {exc.strerror}") from None
-    try:
-        data = tomllib.loads(raw.decode("utf-8"))
-    except UnicodeDecodeError:
-        raise ParameterError(f"{p}: not a text (UTF-8) TOML file") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise ParameterError(f"{p}: not valid TOML: {exc}") from None
+    data = read_toml(p)
     return parse_scenario(data, name=str(p), base_dir=p.parent, path=p)
 
 

@@ -25,8 +25,9 @@ from pathlib import Path
 import numpy as np
 from scipy import signal
 
-from ..errors import ParameterError
-from ..fileio import atomic_path, check_output
+from ..errors import OutputError, ParameterError
+from ..fileio import check_free_space, check_output
+from ..fileset import OutputSet
 from ._nco import phase_cycles, phase_offset, phase_step
 from .fading import make_gain
 from .noise import ImpulseNoise, WhiteNoise, noise_power
@@ -515,6 +516,8 @@ def synthesize(scenario, out, *, seconds=None, seed=None, force=False, progress=
     sc = scenario if isinstance(scenario, Scenario) else load_scenario(scenario)
     sc = sc.with_overrides(seconds=seconds, seed=seed)
     cap = sc.capture
+    if str(out) == "" or Path(out).name in ("", ".", ".."):
+        raise OutputError(f"-o {str(out)!r}: give a capture file name (NAME.sigmf-meta or NAME.wav)")
     out = Path(out)
     where = str(sc.path) if sc.path is not None else "scenario"
     inputs = [sc.path] + [Path(st.program.get("path")) for st in sc.stations if st.program.kind == "wav"]
@@ -524,18 +527,33 @@ def synthesize(scenario, out, *, seconds=None, seed=None, force=False, progress=
                              f"use one of {', '.join(_WAV_DATATYPES)} or a .sigmf-meta output")
     truth_path = truth_path_for(out)
     check_output(truth_path, inputs=inputs, force=force, option="truth sidecar")
+    from ..capture.datatypes import parse_datatype
+
+    check_free_space(out, cap.samples * parse_datatype(cap.datatype).sample_bytes)
     state: dict = {}
     blocks = iter_capture(sc, block_size=block_size, progress=progress, _state=state)
     over = 0
     meta = {"description": f"sdrx synth: {sc.title or where}"}
-    with open_writer(out, fs=cap.fs, kind=cap.kind, datatype=cap.datatype,
-                     center_hz=cap.center_hz if cap.kind == "iq" else None, force=force, inputs=inputs,
-                     meta=meta, expected_samples=cap.samples) as w:
-        for block in blocks:
-            over += _over_full_scale(block)
-            w.write(block)
-    truth = _truth(sc, out, state, cap.samples, int(over))
-    with atomic_path(truth_path) as tmp:
-        tmp.write_text(json.dumps(truth, indent=2) + "\n", encoding="utf-8")
+    # one set: capture data, truth, then the file a reader opens (the .sigmf-meta, or the WAV)
+    with OutputSet(_capture_head(out)) as outputs:
+        with open_writer(out, fs=cap.fs, kind=cap.kind, datatype=cap.datatype,
+                         center_hz=cap.center_hz if cap.kind == "iq" else None, force=force, inputs=inputs,
+                         meta=meta, expected_samples=cap.samples, outputs=outputs) as w:
+            for block in blocks:
+                over += _over_full_scale(block)
+                w.write(block)
+        truth = _truth(sc, out, state, cap.samples, int(over))
+        _write_text(outputs.add(truth_path), json.dumps(truth, indent=2) + "\n", truth_path)
     return truth
 
+
+def _capture_head(out: Path) -> Path:
+    """The file of a capture a reader opens: the .sigmf-meta of a SigMF pair, else the file itself."""
+    return out.with_name(_capture_name(out))
+
+
+def _write_text(tmp: Path, text: str, final: Path) -> None:
+    try:
+        tmp.write_text(text, encoding="utf-8")
+    except OSError as exc:
+        raise OutputError(f"{final}: cannot write ({exc.strerror})") from None
