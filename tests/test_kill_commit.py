@@ -258,3 +258,13 @@ def test_real_sigkill_between_renames(tmp_path):
     from sdrx.capture import open_capture
 
     assert open_capture(out).read().size == 12000
+
+
+def test_band_folder(capture, tmp_path, capsys, monkeypatch):
+    d = tmp_path / "band"
+    common = [capture, "-o", d, "--duration", "0.5", "--segment", "0", "--quiet"]
+    states = _every_kill(capsys, monkeypatch, d, ".sdrx-band",
+                         ["band", *common, "--stations", "1M,1.05M"],
+                         ["band", *common, "--stations", "1M", "--chain", "narrow", "--force"])
+    assert "incomplete" in states
+    assert "1050k.wav" not in final_files(d)         # the earlier run's station is retired

@@ -1,9 +1,10 @@
 """The band folder as one set of outputs: names, the folder check, and the commit at the end.
 
 Every file of a band run is written under a temporary name first and all of
-them are renamed into place only when the whole run has succeeded
-(:func:`output_set`); an error or an interrupt removes the temporaries and
-leaves the folder as it was. The folder is marked as sdrx's with
+them are committed as one set (:class:`sdrx.fileset.OutputSet`) only when the
+whole run has succeeded (:func:`output_set`); an error or an interrupt removes
+the temporaries and leaves the folder as it was, and a kill during the commit
+is finished by the next run. The folder is marked as sdrx's with
 :data:`MARKER`, a JSON list of the files it holds, so that ``--force`` may
 replace an earlier band run (and remove the files it listed that the new
 run does not write) but never a file sdrx did not make.
@@ -17,9 +18,9 @@ from pathlib import Path
 from typing import Iterator
 
 from ..errors import OutputError
-from ..fileio import atomic_path, check_output, same_file
+from ..fileio import check_output, same_file
 
-__all__ = ["MARKER", "station_name", "capture_folders", "check_band_dir", "output_set", "remove_stale"]
+__all__ = ["MARKER", "station_name", "capture_folders", "check_band_dir", "output_set"]
 
 MARKER = ".sdrx-band"
 
@@ -124,70 +125,76 @@ def check_band_dir(out_dir, names, inputs, *, force: bool = False) -> set:
 
 
 @contextlib.contextmanager
-def output_set(out_dir, names) -> Iterator[dict]:
-    """Temporary paths for every output; all renamed into place when the block ends without an error.
+def output_set(out_dir, names, *, stale=(), streamed=()) -> Iterator[tuple]:
+    """Temporary paths for the outputs; all committed as one set when the block ends without an error.
 
     Parameters
     ----------
     out_dir : Path
     names : sequence of str
         Relative paths (a folder per capture is made as needed).
+    stale : iterable of str
+        Files of an earlier band run that this one does not write: removed once the new set is in place.
+    streamed : iterable of str
+        Those of ``names`` that a writer joins to the set itself (the WAVs: a
+        :class:`~sdrx.capture.wavio.WavStream` with ``outputs=``); no
+        temporary is made for them here.
 
     Yields
     ------
-    dict
-        name -> temporary path beside its final path.
+    (dict, OutputSet)
+        name -> temporary path beside its final path (the other names), and the set.
 
     Notes
     -----
-    One place where a multi-file output is committed: today each file is a
-    ``fileio.atomic_path`` (temporary + rename) and the renames happen
-    together at the end, the marker and JSON last, so a folder with a
-    marker holds a complete set.
+    :class:`sdrx.fileset.OutputSet` with the marker as its head (renamed
+    last): every file complete, then a journal, then the renames, so that a
+    run killed at any moment leaves the old set or the new one (the next run
+    finishes an interrupted commit from the journal). Folders this run made
+    are removed again when it fails.
 
     Examples
     --------
     >>> import tempfile, pathlib
     >>> d = pathlib.Path(tempfile.mkdtemp())
-    >>> with output_set(d, ["a.txt", "sub/b.txt"]) as tmp:
+    >>> with output_set(d, ["a.txt", "sub/b.txt"]) as (tmp, _):
     ...     _ = tmp["a.txt"].write_text("1"); _ = tmp["sub/b.txt"].write_text("2")
     >>> sorted(str(p.relative_to(d)) for p in d.rglob("*.txt"))
     ['a.txt', 'sub/b.txt']
     """
+    from ..fileset import OutputSet
+
     d = Path(out_dir)
     made = []
     if not d.exists():
         d.mkdir()
         made.append(d)
+    head = d / MARKER if MARKER in names else None
+    outputs = OutputSet(head, option="-o")
     try:
-        with contextlib.ExitStack() as stack:
-            tmp = {}
-            # entered first, renamed last: the marker and the JSON appear only after everything else
-            for name in sorted(names, key=lambda n: (n != MARKER, n != "band.json", n)):
-                target = d / name
-                if not target.parent.exists():
-                    target.parent.mkdir(parents=True)
-                    made.append(target.parent)
-                check_output(target, force=True)
-                tmp[name] = stack.enter_context(atomic_path(target))
-            yield tmp
+        tmp = {}
+        for name in names:
+            target = d / name
+            if not target.parent.exists():
+                target.parent.mkdir(parents=True)
+                made.append(target.parent)
+            check_output(target, force=True)
+            if name not in streamed:
+                tmp[name] = outputs.add(target)
+        for name in sorted(set(stale) - set(names) - {MARKER}):
+            parts = Path(name).parts
+            if ".." not in parts and not Path(name).is_absolute():
+                outputs.retire(d / name)
+        yield tmp, outputs
+        outputs.commit()
     except BaseException:
+        outputs.abort()
         for folder in reversed(made):
             with contextlib.suppress(OSError):
                 folder.rmdir()
         raise
-
-
-def remove_stale(out_dir, old, new) -> None:
-    """Remove files an earlier band run listed that this run did not write (only those), then empty folders."""
-    d = Path(out_dir)
-    for name in sorted(set(old) - set(new) - {MARKER}):
-        p = d / name
+    for name in stale:
         parts = Path(name).parts
-        if ".." in parts or Path(name).is_absolute():
-            continue
-        if p.is_file():
-            p.unlink()
+        if len(parts) > 1 and name not in names:
             with contextlib.suppress(OSError):
-                if len(parts) > 1:
-                    p.parent.rmdir()
+                (d / name).parent.rmdir()     # a capture folder the new run no longer has

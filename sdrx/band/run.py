@@ -32,7 +32,7 @@ from ..errors import ParameterError
 from ..fileio import same_file
 from ..units import format_frequency, parse_frequency, parse_seconds
 from .choices import parse_chains, parse_stations
-from .outputs import MARKER, capture_folders, check_band_dir, output_set, remove_stale, station_name
+from .outputs import MARKER, capture_folders, check_band_dir, output_set, station_name
 from .plan import cut_period, grid_period, plan_segments, settle_time_s
 
 __all__ = ["band", "DEFAULT_SEGMENT_S"]
@@ -184,7 +184,7 @@ def _names(caps) -> dict:
 class _Streams:
     """The output WAVs being written (on temporary paths), one per station."""
 
-    def __init__(self, caps, names, tmp, designs, float_output):
+    def __init__(self, caps, names, out, outputs, designs, float_output):
         from ..capture.wavio import WavStream
 
         self.streams = {}
@@ -194,8 +194,8 @@ class _Streams:
                 for j, (f, spec) in enumerate(c.stations):
                     fa = designs[spec].audio.rate_hz
                     n = int(math.floor(c.count * fa / c.info.fs + 1e-9))
-                    self.streams[c.index, j] = WavStream(tmp[names[c.index, j]], fa, 1, fmt, expected_frames=n,
-                                                         info={})
+                    self.streams[c.index, j] = WavStream(Path(out) / names[c.index, j], fa, 1, fmt,
+                                                         expected_frames=n, info={}, outputs=outputs)
         except BaseException:
             self.abort()
             raise
@@ -320,13 +320,12 @@ def band(captures, out_dir, *, stations="all", min_level_dbfs=None, chains=(), s
     files = sorted(names.values()) + [JSON_FILE, LOG_FILE, PAGE_FILE, MARKER]
     check_band_dir(out_dir, files, inputs, force=force)
     out = Path(out_dir)
-    with output_set(out, files) as tmp:
-        results = _receive_all(caps, kwargs, names, tmp, designs, float_output, workers, scheduler, progress,
+    with output_set(out, files, stale=old, streamed=set(names.values())) as (tmp, outputs):
+        results = _receive_all(caps, kwargs, names, outputs, designs, float_output, workers, scheduler, progress,
                                out, work_dir)
         summary = _summary(caps, names, designs, results, spacing, segment_s, overlap, float_output)
         _write_reports(caps, tmp, summary, results)
         tmp[MARKER].write_text(json.dumps({"made_by": "sdrx band", "files": files}, indent=1) + "\n")
-    remove_stale(out, old, files)
     return summary
 
 
@@ -336,7 +335,7 @@ def _run(fn, jobs, workers, scheduler, **kw):
     return run_jobs(fn, jobs, workers=workers, scheduler=scheduler, **kw)
 
 
-def _receive_all(caps, kwargs, names, tmp, designs, float_output, workers, scheduler, progress, out,
+def _receive_all(caps, kwargs, names, outputs, designs, float_output, workers, scheduler, progress, out,
                  work_dir) -> dict:
     """Run every segment; the WAVs are complete (on their temporary paths) when this returns."""
     from .segment import SegmentJob, StationJob, run_segment
@@ -352,7 +351,7 @@ def _receive_all(caps, kwargs, names, tmp, designs, float_output, workers, sched
                                    float_output, c.spectrogram, None if parts_dir is None else str(parts_dir),
                                    c.corrections))
             weights.append(s.samples)
-    streams = _Streams(caps, names, tmp, designs, float_output)
+    streams = _Streams(caps, names, out, outputs, designs, float_output)
     results = {}
     pending = {c.index: 0 for c in caps}
     try:
