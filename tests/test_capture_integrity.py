@@ -104,3 +104,15 @@ def test_sdrx_own_rf64_is_not_taken_for_cut(tmp_path):
     s.write_codes(np.zeros(1000, np.int16))
     s.close()
     assert open_capture(tmp_path / "big.wav").info.samples == 1000
+
+
+def test_float64_values_beyond_float32_warn_nothing(tmp_path, capsys):
+    """cf64 samples of 1e300 (fuzz: a ci16 file declared cf64_le): one line, no numpy overflow warning."""
+    import warnings
+
+    p = tmp_path / "x.cf64"
+    np.full(2000, 1e300, dtype="<f8").tofile(p)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        rc, out, err = run(["info", p, "--format", "cf64_le", "--rate", "240k", "--center", "1M"], capsys)
+    one_line(rc, err, "sample 0 (t = 0.000000 s) is infinite or beyond ±3.4e38")
