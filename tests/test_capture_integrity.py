@@ -104,3 +104,31 @@ def test_sdrx_own_rf64_is_not_taken_for_cut(tmp_path):
     s.write_codes(np.zeros(1000, np.int16))
     s.close()
     assert open_capture(tmp_path / "big.wav").info.samples == 1000
+
+
+def test_float64_values_beyond_float32_warn_nothing(tmp_path, capsys):
+    """cf64 samples of 1e300 (fuzz: a ci16 file declared cf64_le): one line, no numpy overflow warning."""
+    import warnings
+
+    p = tmp_path / "x.cf64"
+    np.full(2000, 1e300, dtype="<f8").tofile(p)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        rc, out, err = run(["info", p, "--format", "cf64_le", "--rate", "240k", "--center", "1M"], capsys)
+    one_line(rc, err, "sample 0 (t = 0.000000 s) is infinite or beyond ±3.4e38")
+
+
+def test_w64_chunk_size_beyond_any_file(tmp_path, capsys):
+    """A W64 chunk size of 2^63 (fuzz: seek past any offset): a one-line error, not a ValueError."""
+    import io
+    import struct
+
+    buf = io.BytesIO()
+    sf.write(buf, np.zeros(100), 48000, format="W64", subtype="PCM_16")
+    b = bytearray(buf.getvalue())
+    for at in range(40, min(len(b) - 8, 120), 8):
+        b2 = bytearray(b)
+        b2[at:at + 8] = struct.pack("<Q", 2 ** 63 + 5)
+        (tmp_path / "x.w64").write_bytes(bytes(b2))
+        rc, out, err = run(["info", tmp_path / "x.w64", "--json", "--quiet"], capsys)
+        assert rc in (0, 2) and "Traceback" not in err and len(err.strip().splitlines()) <= 1, (at, err)

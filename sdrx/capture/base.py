@@ -168,7 +168,7 @@ class CaptureReader:
         if bool(np.isnan(v)):
             what = "NaN"
         elif not bool(np.isfinite(v)):
-            what = "infinite"
+            what = "infinite" + (" or beyond ±3.4e38" if "64" in self.info.datatype else "")
         else:
             what = f"{abs(complex(v)):.3g}, beyond {MAX_FLOAT_SAMPLE:g} (full scale is 1.0)"
         raise CaptureError(

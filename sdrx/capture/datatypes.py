@@ -154,7 +154,9 @@ class Datatype:
             if raw.dtype == np.float32 and raw.dtype.isnative:
                 out = raw
             else:
-                out = raw.astype(np.float32)
+                # a float64 value beyond the float32 range becomes inf, which the reader reports
+                with np.errstate(over="ignore"):
+                    out = raw.astype(np.float32)
         elif self.base == "i":
             out = np.empty(raw.shape, dtype=np.float32)
             np.multiply(raw, np.float32(self.scale), out=out, dtype=np.float32, casting="unsafe")

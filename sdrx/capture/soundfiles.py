@@ -100,6 +100,8 @@ def data_chunk_shortfall(path: Path):
             ds64 = None
             pos = 40 if w64 else 12
             for _ in range(64):                       # a data chunk comes within the first few
+                if pos >= size:
+                    return None
                 fh.seek(pos)
                 hdr = fh.read(24 if w64 else 8)
                 if len(hdr) < (24 if w64 else 8):
@@ -124,7 +126,7 @@ def data_chunk_shortfall(path: Path):
                 if body < 0:
                     return None
                 pos = nxt
-    except OSError:
+    except (OSError, ValueError, OverflowError, struct.error):
         return None
     return None
 
