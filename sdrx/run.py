@@ -180,7 +180,7 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
 
     if path not in PATHS:
         raise ParameterError(f"--path {path!r}: choose one of {', '.join(PATHS)}")
-    from .capture.correct import CorrectionPlan, corrected_reader, plan_corrections
+    from .capture.correct import CorrectionPlan, corrected_reader, parse_correct, plan_corrections
 
     reader = capture if hasattr(capture, "blocks") else open_capture(capture, datatype=datatype, fs=fs, center_hz=center_hz)
     info = reader.info
@@ -203,8 +203,10 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
     spacing = parse_frequency(spacing_hz, "--spacing")
     fs_dbm = None if full_scale_dbm is None else parse_full_scale_dbm(full_scale_dbm, "--full-scale-dbm")
     rx_kw = dict(path=path, if_rate_hz=if_rate, spacing_hz=spacing, full_scale_dbm=fs_dbm)
-    # the tuning, the path and the front end are checked before the corrections' estimation pass
-    Receiver(design, info, tune, first_sample=first, **rx_kw).close()
+    corrections_asked = isinstance(correct, CorrectionPlan) or ppm is not None or bool(parse_correct(correct))
+    if corrections_asked:
+        # the tuning, the path and the front end are checked before the corrections' estimation pass
+        Receiver(design, info, tune, first_sample=first, **rx_kw).close()
     if isinstance(correct, CorrectionPlan):
         if ppm is not None:
             raise ParameterError("--ppm: already part of the correction plan given")
