@@ -17,8 +17,9 @@ demo: $(STAMP)
 	bash demo_signals/demo.sh
 
 # pytest exits 5 when it collects nothing; that is a failure here too (any non-zero status is).
+# The suite runs on one worker process per core (pytest-xdist); `$(PY) -m pytest -q` runs it in one.
 test: $(STAMP) browser
-	$(PY) -m pytest -q
+	$(PY) -m pytest -q -n auto
 
 # Property-based fuzz of the README's promises (tests/fuzzing.py): FUZZ_CASES cases, counts by outcome;
 # fails on any traceback, hang over 20 s, partial file, written input or noise on stderr.
