@@ -41,10 +41,16 @@ def test_json_keys(report):
     json.dumps(d, allow_nan=False)
 
 
+#: A number as the page prints it: digits, optionally a unit (the unit's size in report.json's SI units).
+_PRINTED = re.compile(r"([-+]?\d+(?:\.(\d+))?)(?: (Hz|kHz|MHz|µs))?")
+_UNIT = {None: 1.0, "Hz": 1.0, "kHz": 1e3, "MHz": 1e6, "µs": 1e-6}
+
+
 class _Collect(HTMLParser):
     def __init__(self):
         super().__init__()
         self.keyed = []      # (data-key, text)
+        self.values = {}     # data-key -> data-value (the JSON value as repr)
         self.numeric_td = []  # text of every numeric cell
         self.refs = []       # src/href values
         self.imgs = []
@@ -61,6 +67,8 @@ class _Collect(HTMLParser):
             self.imgs.append(a)
         if tag in ("td", "span"):
             self._key = a.get("data-key")
+            if self._key is not None and "data-value" in a:
+                self.values[self._key] = a["data-value"]
             self._td = True
             self._buf = ""
 
@@ -71,7 +79,7 @@ class _Collect(HTMLParser):
     def handle_endtag(self, tag):
         if tag in ("td", "span") and self._td:
             text = self._buf.strip()
-            if re.fullmatch(r"[-+]?\d+(\.\d*)?([eE][-+]?\d+)?", text):
+            if _PRINTED.fullmatch(text):
                 self.numeric_td.append(text)
             if self._key is not None:
                 self.keyed.append((self._key, text))
@@ -90,14 +98,22 @@ def _check_html_against_json(folder):
     assert sorted(i["data-name"] for i in p.imgs) == sorted(data["figures"])
     for name in data["figures"]:
         assert (folder / name).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
-    # every number in the tables is tagged and equals the JSON value
+    # every number in the tables is tagged; its data-value is the JSON value and its text that value as a
+    # reader reads it: kHz/MHz (never thousands of Hz, never "600000.0"), µs, rounded to the digits shown
     assert len(p.numeric_td) == sum(1 for k, t in p.keyed if t != "n/a")
     for key, text in p.keyed:
         v = lookup(data, key)
         if text == "n/a":
             assert v is None, key
-        else:
-            assert float(text) == v, key
+            continue
+        assert float(p.values[key]) == v, key
+        m = _PRINTED.fullmatch(text)
+        assert m, (key, text)
+        decimals = len(m.group(2) or "")
+        scale = _UNIT[m.group(3)]
+        assert abs(float(m.group(1)) * scale - v) <= 0.5 * 10.0 ** -decimals * scale * (1 + 1e-9), (key, text, v)
+        if m.group(3) in ("Hz", "kHz", "MHz"):
+            assert abs(float(m.group(1))) < 1000 and not m.group(1).endswith(".0"), (key, text)
     return data, p
 
 
@@ -267,3 +283,39 @@ def test_most_stages_and_an_odd_name_draw_without_warnings(tmp_path):
         rep = build_report({"name": "名前 " + "long " * 60, "if_stage": [stage] * 16}, 1e6, measure=False)
         write_report(rep, tmp_path / "r")
     assert len(rep.data["designed"]["q"]["stages"]) == 17      # the preselector and 16 IF stages
+
+
+def test_stages_are_described_in_words_in_the_legend_and_the_table(tmp_path, monkeypatch):
+    """The legend and the Q table say "double-tuned pair (two resonators)", not the config's
+    "double_tuned, order 1"; the poles counted are those of the design (scipy's lp2bp_zpk doubles them)."""
+    from sdrx.chain import design_chain
+    from sdrx.report import plots
+
+    seen = []
+    draw = plots.stages_png
+    monkeypatch.setattr(plots, "stages_png", lambda offs, curves, *a, **k: seen.extend(c[0] for c in curves)
+                        or draw(offs, curves, *a, **k))
+    rep = build_report("wide", 1130e3, measure=False)
+    assert seen == ["preselector: single tuned circuit tracking the tune",
+                    "IF stage 1: Butterworth band-pass, 3 resonators (6 poles)",
+                    "IF stage 2: double-tuned pair (two resonators)"]
+    d = design_chain("wide")
+    assert len(d.stages[0].p) == 6 and len(d.stages[1].p) == 4  # two coupled circuits: four poles
+    write_report(rep, tmp_path / "r")
+    page = (tmp_path / "r" / "report.html").read_text()
+    assert "<td>double-tuned pair (two resonators)</td>" in page
+    assert "<td>Butterworth band-pass, 3 resonators (6 poles)</td>" in page
+    for config_word in ("single_tuned", "double_tuned", "butterworth"):
+        assert f"<td>{config_word}</td>" not in page
+
+
+def test_page_prints_frequencies_in_khz_and_delay_in_us(tmp_path):
+    rep = build_report("medium", 600e3, measure=False)
+    write_report(rep, tmp_path / "r")
+    page = (tmp_path / "r" / "report.html").read_text()
+    _check_html_against_json(tmp_path / "r")
+    assert re.search(r">\d+\.0 ?Hz<|>\d{4,}(\.\d+)?<", page) is None
+    assert 'data-key="tune_hz" data-value="600000.0">600 kHz<' in page
+    assert 'data-key="image_hz" data-value="1510000.0">1.51 MHz<' in page
+    at = rep.data["designed"]["group_delay"]["at_tune_s"]
+    assert f'data-value="{at!r}">{at * 1e6:.1f} µs<' in page

@@ -23,6 +23,7 @@ from ..limits import MAX_POINTS, MIN_POINTS
 from ..units import format_frequency
 from ..analysis import selectivity as sel
 from ..analysis.agc_figures import measure_agc
+from .words import stage_labels
 
 __all__ = ["Report", "build_report", "write_report", "report_files", "GROUP_DELAY_METHOD"]
 
@@ -323,8 +324,10 @@ def _design_figures(design, tune, spacing, designed, des, meas, title) -> dict:
     figs["selectivity.png"] = plots.selectivity_png(des["response"], mresp, spacing, des["adjacent_rejection_db"],
                                                     title=f"Overall selectivity referred to RF - {title}")
     st_offs = np.linspace(-3 * spacing, 3 * spacing, 241)
-    figs["stages.png"] = plots.stages_png(st_offs, sel.stage_responses_db(design, tune, st_offs), dres(st_offs),
-                                          spacing, title=f"Each stage referred to RF - {title}")
+    curves = [(label, db) for label, (_config, db) in zip(stage_labels(design),
+                                                          sel.stage_responses_db(design, tune, st_offs))]
+    figs["stages.png"] = plots.stages_png(st_offs, curves, dres(st_offs), spacing,
+                                          title=f"Each stage referred to RF - {title}")
     figs["image.png"] = plots.image_png(des["response"], mresp, image - tune, spacing, des["image_rejection_db"],
                                         title=f"Image region ({format_frequency(image)}) - {title}")
     gd_offs, gd, e3 = _group_delay_curve(design, tune, spacing, designed)
