@@ -319,3 +319,27 @@ def test_page_prints_frequencies_in_khz_and_delay_in_us(tmp_path):
     assert 'data-key="image_hz" data-value="1510000.0">1.51 MHz<' in page
     at = rep.data["designed"]["group_delay"]["at_tune_s"]
     assert f'data-value="{at!r}">{at * 1e6:.1f} µs<' in page
+
+
+def test_a_long_chain_name_wraps_inside_the_figures(capture, monkeypatch):
+    """A 200-character chain name: every title is wrapped (or cut) and lies inside its figure, as
+    measured by matplotlib's own renderer after the layout."""
+    from sdrx.report import plots
+
+    drawn = []
+    save = plots._png
+    monkeypatch.setattr(plots, "_png", lambda fig, ctx: drawn.append(fig) or save(fig, ctx))
+    for name in ("chain " * 34)[:200], "x" * 200:
+        drawn.clear()
+        rep = build_report({"name": name}, TUNE, capture=capture[0], measure=False)
+        assert len(drawn) == len(rep.figures) == 5
+        for fig in drawn:
+            renderer = fig.canvas.get_renderer()
+            titles = plots._titles(fig)
+            assert titles
+            for t in titles:
+                box = t.get_window_extent(renderer)
+                assert 0 <= box.x0 and box.x1 <= fig.bbox.width, t.get_text()
+                assert 0 <= box.y0 and box.y1 <= fig.bbox.height, t.get_text()
+                assert t.get_text().count("\n") < plots.TITLE_LINES
+        assert any("\n" in t.get_text() for fig in drawn for t in plots._titles(fig))

@@ -23,7 +23,7 @@ from ..limits import MAX_POINTS, MIN_POINTS
 from ..units import format_frequency
 from ..analysis import selectivity as sel
 from ..analysis.agc_figures import measure_agc
-from .words import stage_labels
+from .words import short_name, stage_labels
 
 __all__ = ["Report", "build_report", "write_report", "report_files", "GROUP_DELAY_METHOD"]
 
@@ -188,7 +188,7 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
         meas, datasheet_figs = _measured_section(design, tune, spacing, designed, des, path, points,
                                                  noise_figure_db, progress)
     data = _report_head(design, tune, spacing, des, meas)
-    title = f"{design.name}: tuned to {format_frequency(tune)}, IF {format_frequency(design.if_hz)}"
+    title = f"{short_name(design.name)}: tuned to {format_frequency(tune)}, IF {format_frequency(design.if_hz)}"
     figs = _design_figures(design, tune, spacing, designed, des, meas, title)
     if reader is not None:
         _add_capture(data, figs, reader, plan, design, tune, spacing, designed, start_s, duration_s, title)

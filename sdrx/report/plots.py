@@ -59,6 +59,7 @@ def _figure():
 
     matplotlib.use("Agg", force=True)
     from cycler import cycler
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
     rc = dict(_RC)
@@ -66,6 +67,7 @@ def _figure():
     ctx = matplotlib.rc_context(rc)
     ctx.__enter__()
     fig = Figure(figsize=_SIZE, dpi=_DPI)
+    FigureCanvasAgg(fig)  # a renderer to measure the titles with (see _fit_titles)
     return fig, ctx
 
 
@@ -80,10 +82,57 @@ def _png(fig, ctx) -> bytes:
             warnings.filterwarnings("ignore", r"Glyph .* missing from", UserWarning)
             warnings.filterwarnings("ignore", r"Tight layout not applied", UserWarning)
             fig.tight_layout()
+            if _fit_titles(fig):
+                fig.tight_layout()
             fig.savefig(buf, format="png", dpi=_DPI, metadata={"Software": None})
     finally:
         ctx.__exit__(None, None, None)
     return buf.getvalue()
+
+
+#: A title takes at most this many lines; the rest of a longer one is cut with "…".
+TITLE_LINES = 3
+
+
+def _titles(fig) -> list:
+    """The figure's title texts: each axes' centre title and the figure's suptitle."""
+    out = [ax.title for ax in fig.axes]
+    if getattr(fig, "_suptitle", None) is not None:
+        out.append(fig._suptitle)
+    return [t for t in out if t.get_text()]
+
+
+def _fit_titles(fig, margin=0.96) -> bool:
+    """Wrap each title wider than the room about its centre onto at most :data:`TITLE_LINES` lines.
+
+    A chain's name can be as long as the user likes: the title is broken at
+    spaces where it can be (anywhere in a word that is longer than a line),
+    measured with the figure's renderer, and cut with "…" after the last line.
+    Returns whether any title changed (the layout is then made again).
+    """
+    import re
+    import textwrap
+
+    renderer = fig.canvas.get_renderer()
+    changed = False
+    for t in _titles(fig):
+        # a number stays on the line of its unit ("1 MHz"): a no-break space between them
+        text = re.sub(r"(\d) (?=[kMG]?Hz|dB)", "\\1\u00a0", t.get_text().replace("\n", " "))
+        box = t.get_window_extent(renderer)
+        centre = (box.x0 + box.x1) / 2
+        room = 2 * min(centre, fig.bbox.width - centre) * margin
+        width = box.width
+        changed = changed or width > room
+        chars = len(text)
+        while width > room and chars > 8:
+            chars = max(8, min(chars - 1, int(chars * room / width)))
+            lines = textwrap.wrap(text, chars, break_long_words=True)
+            if len(lines) > TITLE_LINES:
+                lines = lines[:TITLE_LINES]
+                lines[-1] = lines[-1][:max(1, chars - 1)].rstrip() + "…"
+            t.set_text("\n".join(lines))
+            width = t.get_window_extent(renderer).width
+    return changed
 
 
 def _channel_grid(ax, spacing_khz, span_khz):

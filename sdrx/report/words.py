@@ -9,7 +9,10 @@ keeps the config words.
 
 from __future__ import annotations
 
-__all__ = ["stage_words", "preselector_words", "stage_labels"]
+__all__ = ["stage_words", "preselector_words", "stage_labels", "short_name", "NAME_CHARS"]
+
+#: A chain's name in a figure's title is cut to this many characters (the page prints it whole).
+NAME_CHARS = 60
 
 _NAMES = {"butterworth": "Butterworth", "chebyshev": "Chebyshev", "bessel": "Bessel", "elliptic": "elliptic"}
 
@@ -95,3 +98,17 @@ def stage_labels(design) -> list:
     for i, st in enumerate(design.stages, 1):
         out.append(f"IF stage {i}: {stage_words(st.response, st.order)}")
     return out
+
+
+def short_name(name: str, limit: int = NAME_CHARS) -> str:
+    """A chain's name for a figure title: whole up to ``limit`` characters, else cut with "…".
+
+    Examples
+    --------
+    >>> short_name("medium")
+    'medium'
+    >>> short_name("x" * 100, 10)
+    'xxxxxxxxx…'
+    """
+    name = " ".join(str(name).split())
+    return name if len(name) <= limit else name[:limit - 1].rstrip() + "…"
