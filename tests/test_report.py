@@ -343,3 +343,62 @@ def test_a_long_chain_name_wraps_inside_the_figures(capture, monkeypatch):
                 assert 0 <= box.y0 and box.y1 <= fig.bbox.height, t.get_text()
                 assert t.get_text().count("\n") < plots.TITLE_LINES
         assert any("\n" in t.get_text() for fig in drawn for t in plots._titles(fig))
+
+
+def test_spectrum_states_its_resolution_bandwidth(capture, tmp_path, monkeypatch):
+    """The RBW printed on the spectrum (and kept in report.json) is the Hann window's equivalent noise
+    bandwidth fs·Σw²/(Σw)² (Harris 1978, Proc. IEEE 66(1), sec. IV-A), computed here from scipy's window."""
+    from scipy.signal import get_window
+
+    from sdrx.report import plots
+
+    drawn = {}
+    draw = plots.spectrum_png
+    monkeypatch.setattr(plots, "spectrum_png", lambda *a, **k: drawn.update(k) or draw(*a, **k))
+    rep = build_report("medium", TUNE, capture=capture[0], measure=False)
+    s = rep.data["spectrum"]
+    fs, n = 250e3, s["fft_points"]
+    assert n & (n - 1) == 0 and fs / n <= 10e3 / 20 < 2 * fs / n   # the next power of two of fs / (spacing/20)
+    w = get_window("hann", n, fftbins=False)                       # symmetric, as numpy's hanning
+    enbw_hz = fs * np.sum(w ** 2) / np.sum(w) ** 2
+    assert s["rbw_hz"] == pytest.approx(enbw_hz, abs=1e-3) and s["bin_hz"] == pytest.approx(fs / n, abs=1e-3)
+    # Harris Table 1: 1.50 bins for the (DFT-even) Hann window; the symmetric N-point one, zero at both ends,
+    # has Σw = (N-1)/2 and Σw² = 3(N-1)/8: 1.5·N/(N-1) bins
+    assert s["rbw_hz"] / s["bin_hz"] == pytest.approx(1.5 * n / (n - 1), rel=1e-5)
+    assert drawn["rbw_hz"] == pytest.approx(enbw_hz, rel=1e-12)
+    write_report(rep, tmp_path / "r")
+    page = (tmp_path / "r" / "report.html").read_text()
+    assert f">{enbw_hz:.1f} Hz</span>; level in dBFS per RBW" in page
+    _check_html_against_json(tmp_path / "r")
+
+
+def test_spectrum_text_names_the_rbw(monkeypatch):
+    from sdrx.report import plots
+
+    figs = []
+    save = plots._png
+    monkeypatch.setattr(plots, "_png", lambda fig, ctx: figs.append(fig) or save(fig, ctx))
+    f = np.linspace(990e3, 1010e3, 50)
+    plots.spectrum_png(f, -100 + 0 * f, 1e6, (996e3, 1004e3), 1.91e6, [], rbw_hz=439.56, bin_hz=292.97)
+    (fig,) = figs
+    assert fig._supxlabel.get_text().startswith("RBW 439.6 Hz: noise bandwidth of the Hann window, bins 293 Hz")
+    assert fig.axes[0].get_ylabel() == "level, dBFS per RBW"
+
+
+def test_spectrum_floor_reads_the_noise_power_within_the_rbw(tmp_path):
+    """White noise of power σ² (complex, E|x|² = σ²) reads σ²·RBW/fs on the spectrum: the level is dBFS per
+    RBW. 146 segments of 512 bins: the mean's spread is about 0.01 dB."""
+    from sdrx.report.spectrum import capture_spectrum, spectrum_resolution
+
+    fs, sigma2 = 250e3, 1e-6
+    rng = np.random.default_rng(11)
+    x = np.sqrt(sigma2 / 2) * (rng.standard_normal(75000) + 1j * rng.standard_normal(75000))
+    path = tmp_path / "noise.sigmf-meta"
+    with open_writer(path, fs=fs, kind="iq", datatype="cf32_le", center_hz=1e6) as w:
+        w.write(x.astype(np.complex64))
+    from sdrx.capture import open_capture
+
+    _f, level = capture_spectrum(open_capture(path), 500.0)
+    r = spectrum_resolution(fs, 500.0)
+    mean_db = 10 * np.log10(np.mean(10 ** (level / 10)))
+    assert mean_db == pytest.approx(10 * np.log10(sigma2 * r.rbw_hz / fs), abs=0.05)

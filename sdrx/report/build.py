@@ -344,25 +344,31 @@ def _add_capture(data, figs, reader, plan, design, tune, spacing, designed, star
     data["capture"] = reader.info.to_json()
     data["corrections"] = plan.to_json()
     data["carriers"] = _carriers(reader, design, tune, spacing, start_s, duration_s, None)
-    figs["spectrum.png"] = _spectrum_figure(reader, design, tune, spacing, designed, data["carriers"], start_s,
-                                            duration_s, title)
+    figs["spectrum.png"], resolution = _spectrum_figure(reader, design, tune, spacing, designed, data["carriers"],
+                                                        start_s, duration_s, title)
+    data["spectrum"] = resolution.to_json()
 
 
-def _spectrum_figure(reader, design, tune, spacing, designed, carriers, start_s, duration_s, title) -> bytes:
-    """The capture's spectrum around the tuning (and around the image when the capture holds it)."""
+def _spectrum_figure(reader, design, tune, spacing, designed, carriers, start_s, duration_s, title):
+    """The capture's spectrum around the tuning (and around the image when the capture holds it).
+
+    Returns the PNG bytes and the spectrum's :class:`~sdrx.report.spectrum.Resolution`.
+    """
     from . import plots
-    from .spectrum import capture_spectrum
+    from .spectrum import capture_spectrum, spectrum_resolution
 
     image = design.image_hz(tune)
     e6 = designed.edges_hz["6"]
     f, lv = capture_spectrum(reader, spacing / 20, start_s=start_s, duration_s=duration_s)
+    resolution = spectrum_resolution(reader.info.fs, spacing / 20)
     near = np.abs(f - tune) <= (NEAR_CHANNELS + 0.5) * spacing
     nim = np.abs(f - image) <= 3.5 * spacing
     cars = [(c["freq_hz"], c["antenna_dbfs"]) for c in carriers]
-    return plots.spectrum_png(
+    png = plots.spectrum_png(
         f[near], lv[near], tune, (tune + e6[0], tune + e6[1]) if None not in e6 else (tune, tune), image, cars,
         image_freqs_hz=f[nim] if nim.sum() > 4 else None, image_level_dbfs=lv[nim] if nim.sum() > 4 else None,
-        title=f"Capture spectrum - {title}")
+        title=f"Capture spectrum - {title}", rbw_hz=resolution.rbw_hz, bin_hz=resolution.bin_hz)
+    return png, resolution
 
 
 def report_files(out_dir, figures) -> list:

@@ -14,7 +14,7 @@ import base64
 import html
 
 from .text import (as_db1, as_db2, as_diff_hz, as_hz, as_offset, as_pct, as_plain, as_q, as_signed_db2, as_us,
-                   fixed_text)
+                   fixed_text, frequency_text)
 from .words import stage_words
 
 __all__ = ["render_html", "lookup"]
@@ -160,6 +160,10 @@ def _signed_ratio(v):
     return fixed_text(v, 3, signed=True)
 
 
+def _hz01(v):
+    return frequency_text(v, 0.1)
+
+
 def _ms(v):
     return fixed_text(v, 1)
 
@@ -259,6 +263,12 @@ def render_html(data: dict, figures: dict) -> str:
         parts.append('<p class="note">Capture: %s</p>' % _e(d["capture"]["path"]))
         if "spectrum.png" in figures:
             parts.append(_img("spectrum.png", figures["spectrum.png"], "capture spectrum"))
+        if d.get("spectrum") is not None:
+            parts.append('<p class="note">Spectrum: %s-point FFT, Hann window, bins %s, resolution bandwidth '
+                         "(the window's equivalent noise bandwidth) %s; level in dBFS per RBW: a carrier reads "
+                         "its amplitude, noise its power within the RBW.</p>"
+                         % (_span(d, "spectrum.fft_points"), _span(d, "spectrum.bin_hz", _hz01),
+                            _span(d, "spectrum.rbw_hz", _hz01)))
         parts.append(_carrier_table(d))
     for name in sorted(figures):
         if name not in ("selectivity.png", "stages.png", "image.png", "group_delay.png", "spectrum.png",

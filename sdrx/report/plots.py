@@ -278,7 +278,7 @@ def group_delay_png(offsets_hz, delay_s, edges_hz=None, *, title="") -> bytes:
 
 
 def spectrum_png(freqs_hz, level_dbfs, tune_hz, passband_hz, image_hz, carriers, *, image_freqs_hz=None,
-                 image_level_dbfs=None, title="") -> bytes:
+                 image_level_dbfs=None, title="", rbw_hz, bin_hz) -> bytes:
     """Capture spectrum around the tuning with the passband and the image drawn on it.
 
     Parameters
@@ -293,7 +293,14 @@ def spectrum_png(freqs_hz, level_dbfs, tune_hz, passband_hz, image_hz, carriers,
         Surveyed carriers to mark.
     image_freqs_hz, image_level_dbfs : array_like, optional
         Spectrum around the image, when the capture holds it (second panel).
+    rbw_hz, bin_hz : float
+        Resolution (equivalent noise) bandwidth and bin spacing of the
+        spectrum: stated under each panel; the level is dBFS per RBW.
     """
+    from .text import frequency_text
+
+    rbw = (f"RBW {frequency_text(rbw_hz, 0.1)}: noise bandwidth of the Hann window, bins {frequency_text(bin_hz, 0.1)}"
+           "\na carrier reads its amplitude, noise its power within the RBW")
     fig, ctx = _figure()
     two = image_freqs_hz is not None and len(image_freqs_hz) > 0
     ax = fig.add_subplot(1, 2 if two else 1, 1)
@@ -307,7 +314,7 @@ def spectrum_png(freqs_hz, level_dbfs, tune_hz, passband_hz, image_hz, carriers,
             ax.plot([fc / 1e3], [lv], marker="v", color=OKABE_ITO["vermillion"], ls="none", ms=6)
     ax.plot([], [], marker="v", color=OKABE_ITO["vermillion"], ls="none", label="carriers found")
     ax.set_xlabel("frequency, kHz")
-    ax.set_ylabel("level, dBFS (carrier amplitude)")
+    ax.set_ylabel("level, dBFS per RBW")
     ax.set_title("around the tuning")
     ax.legend(loc="lower left", fontsize=7)
     if two:
@@ -324,6 +331,7 @@ def spectrum_png(freqs_hz, level_dbfs, tune_hz, passband_hz, image_hz, carriers,
     else:
         ax.annotate(f"image at {image_hz / 1e3:g} kHz (outside the capture)", (0.98, 0.95),
                     xycoords="axes fraction", ha="right", va="top", fontsize=8, color=OKABE_ITO["vermillion"])
+    fig.supxlabel(rbw, fontsize=9)
     if title:
         fig.suptitle(title)
     return _png(fig, ctx)
