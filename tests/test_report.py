@@ -402,3 +402,57 @@ def test_spectrum_floor_reads_the_noise_power_within_the_rbw(tmp_path):
     r = spectrum_resolution(fs, 500.0)
     mean_db = 10 * np.log10(np.mean(10 ** (level / 10)))
     assert mean_db == pytest.approx(10 * np.log10(sigma2 * r.rbw_hz / fs), abs=0.05)
+
+
+def test_image_curve_is_drawn_on_a_fine_grid(monkeypatch):
+    """Between the drawn samples the straight segments stay within 0.05 dB of the true response (above
+    -100 dB, away from the elliptic stage's notches); report.json's coarse curve (spacing/10 steps near the
+    image) missed by several dB."""
+    from sdrx.chain import design_chain
+    from sdrx.analysis.selectivity import relative_response_db
+    from sdrx.report import plots
+
+    got = {}
+    draw = plots.image_png
+    monkeypatch.setattr(plots, "image_png", lambda designed, *a, **k: got.update(d=np.asarray(designed))
+                        or draw(designed, *a, **k))
+    rep = build_report("narrow", 1130e3, spacing_hz=9e3, measure=False)
+    design = design_chain("narrow")
+
+    def worst(curve):
+        o, v = curve[:, 0], curve[:, 1]
+        mid = (o[1:] + o[:-1]) / 2
+        true = relative_response_db(design, 1130e3, 1130e3 + mid)
+        keep = (np.minimum(v[1:], v[:-1]) > -100) & (true > -100)
+        return float(np.max(np.abs((v[1:] + v[:-1])[keep] / 2 - true[keep])))
+
+    assert worst(got["d"]) < 0.05
+    coarse = np.asarray([r for r in rep.data["designed"]["response"] if r[0] > 450e3], dtype=float)
+    assert worst(coarse) > 1.0   # the polygon of the issue
+
+
+def test_measured_points_below_the_floor_are_marked(monkeypatch):
+    """A test carrier reading below the figure's range is drawn on the floor with its own marker and
+    legend entry, not as a circle at the floor."""
+    from sdrx.report import plots
+
+    figs = []
+    save = plots._png
+    monkeypatch.setattr(plots, "_png", lambda fig, ctx: figs.append(fig) or save(fig, ctx))
+    im = 910e3
+    o = im + np.linspace(-27e3, 27e3, 541)
+    designed = np.column_stack([o, -40 - 2e-3 * np.abs(o - im) - 1e-7 * (o - im) ** 2])
+    measured = [[im, -40.0], [im + 9e3, -60.0], [im + 17e3, -143.3], [im - 18e3, -float("inf")]]
+    plots.image_png(designed, measured, im, 9e3, 40.0)
+    plots.selectivity_png(designed - [im, 0], [[0.0, 0.0], [18e3, -120.0]], 9e3, {})
+    for fig, below, above in ((figs[0], [17.0, -18.0], [0.0, 9.0]), (figs[1], [18.0], [0.0])):
+        ax = fig.axes[0]
+        bottom = ax.get_ylim()[0]
+        tri = [ln for ln in ax.get_lines() if ln.get_marker() == "v" and len(ln.get_xdata())
+               and ln.get_label().startswith("measured below")]
+        (tri,) = tri
+        assert sorted(tri.get_xdata()) == sorted(below) and set(tri.get_ydata()) == {bottom}
+        assert tri.get_label() == f"measured below {bottom:g} dB (drawn on the floor)"
+        (circ,) = [ln for ln in ax.get_lines() if ln.get_marker() == "o"]
+        assert sorted(circ.get_xdata()) == sorted(above) and min(circ.get_ydata()) > bottom
+        assert tri.get_label() in [t.get_text() for t in ax.get_legend().get_texts()]

@@ -39,6 +39,9 @@ Q_METHOD = ("one single-tuned circuit, exact universal resonance curve 10*log10(
 KNOWN_FILES = ("report.json", "report.html", "selectivity.png", "stages.png", "image.png", "group_delay.png",
                "spectrum.png")
 
+#: Points of the designed curves drawn in selectivity.png and image.png (200 per spacing over ±3 spacings).
+FIGURE_POINTS = 1201
+
 #: Carriers within this many channel spacings of the tune are listed (and any near the image).
 NEAR_CHANNELS = 5
 
@@ -321,14 +324,16 @@ def _design_figures(design, tune, spacing, designed, des, meas, title) -> dict:
     image = design.image_hz(tune)
     mresp = meas["response"] if meas else None
     figs = {}
-    figs["selectivity.png"] = plots.selectivity_png(des["response"], mresp, spacing, des["adjacent_rejection_db"],
+    figs["selectivity.png"] = plots.selectivity_png(_fine_curve(dres, 0.0, spacing), mresp, spacing,
+                                                    des["adjacent_rejection_db"],
                                                     title=f"Overall selectivity referred to RF - {title}")
     st_offs = np.linspace(-3 * spacing, 3 * spacing, 241)
     curves = [(label, db) for label, (_config, db) in zip(stage_labels(design),
                                                           sel.stage_responses_db(design, tune, st_offs))]
     figs["stages.png"] = plots.stages_png(st_offs, curves, dres(st_offs), spacing,
                                           title=f"Each stage referred to RF - {title}")
-    figs["image.png"] = plots.image_png(des["response"], mresp, image - tune, spacing, des["image_rejection_db"],
+    figs["image.png"] = plots.image_png(_fine_curve(dres, image - tune, spacing), mresp, image - tune, spacing,
+                                        des["image_rejection_db"],
                                         title=f"Image region ({format_frequency(image)}) - {title}")
     gd_offs, gd, e3 = _group_delay_curve(design, tune, spacing, designed)
     figs["group_delay.png"] = plots.group_delay_png(gd_offs, gd, e3, title=f"Group delay - {title}")
@@ -337,6 +342,13 @@ def _design_figures(design, tune, spacing, designed, des, meas, title) -> dict:
         figs["agc.png"] = plots.agc_png(a["characteristic"], a["range_db"], a["range_dbfs"], a["reference_dbfs"],
                                         title=f"AGC characteristic - {title}")
     return figs
+
+
+def _fine_curve(dres, centre_hz, spacing):
+    """The designed response on a fine grid for a figure: ±3 spacings about ``centre_hz``, 200 points per
+    spacing (report.json keeps its coarser curve)."""
+    offs = centre_hz + np.linspace(-3 * spacing, 3 * spacing, FIGURE_POINTS)
+    return np.column_stack([offs, dres(offs)])
 
 
 def _add_capture(data, figs, reader, plan, design, tune, spacing, designed, start_s, duration_s, title):

@@ -135,6 +135,25 @@ def _fit_titles(fig, margin=0.96) -> bool:
     return changed
 
 
+def _measured_points(ax, x_khz, y_db, label):
+    """Measured points as open circles; those below the axes' bottom drawn on it as open triangles.
+
+    A test carrier that reads below the figure's range is a real measurement of a lower level (the
+    single-signal measurement reaches about −160 dB), not a point at the floor: it gets its own marker and
+    legend entry ("below −140 dB, drawn on the floor"). Call after the y limits are set.
+    """
+    bottom = ax.get_ylim()[0]
+    x = np.asarray(x_khz, dtype=float)
+    y = np.asarray(y_db, dtype=float)
+    below = ~(y > bottom)  # -inf (no carrier found) is below too
+    ax.plot(x[~below], y[~below], ls="none", marker="o", ms=4.5, mfc="none", color=OKABE_ITO["vermillion"],
+            label=label)
+    if below.any():
+        ax.plot(x[below], np.full(int(below.sum()), bottom), ls="none", marker="v", ms=6, mfc="none",
+                mew=1.3, color=OKABE_ITO["vermillion"], clip_on=False,
+                label=f"measured below {bottom:g} dB (drawn on the floor)")
+
+
 def _channel_grid(ax, spacing_khz, span_khz):
     n = int(np.floor(span_khz / spacing_khz))
     for k in range(-n, n + 1):
@@ -168,11 +187,11 @@ def selectivity_png(designed, measured, spacing_hz, rejections, *, title="", flo
     sk = spacing_hz / 1e3
     _channel_grid(ax, sk, span / 1e3)
     ax.plot(d[sel, 0] / 1e3, np.maximum(d[sel, 1], floor_db), color=OKABE_ITO["blue"], lw=1.8, label="designed")
+    ax.set_ylim(floor_db, 8)
     if measured is not None and len(measured):
         m = np.asarray(measured, dtype=float).reshape(-1, 2)
         ms = np.abs(m[:, 0]) <= span * 1.0001
-        ax.plot(m[ms, 0] / 1e3, np.maximum(m[ms, 1], floor_db), ls="none", marker="o", ms=4.5, mfc="none",
-                color=OKABE_ITO["vermillion"], label="measured (test carriers, AGC held)")
+        _measured_points(ax, m[ms, 0] / 1e3, m[ms, 1], "measured (test carriers, AGC held)")
     for key, rej in sorted(rejections.items(), key=lambda kv: float(kv[0])):
         x = float(key) / 1e3
         if rej is None:
@@ -187,7 +206,6 @@ def selectivity_png(designed, measured, spacing_hz, rejections, *, title="", flo
                     bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.85})
     ax.plot([], [], marker="v", ls="none", color=OKABE_ITO["green"], label="±1, ±2 channels (designed)")
     ax.set_xlim(-span / 1e3, span / 1e3)
-    ax.set_ylim(floor_db, 8)
     ax.set_xlabel(f"offset from tuned carrier, kHz (channel grid every {sk:g} kHz)")
     ax.set_ylabel("response relative to tuned carrier, dB")
     ax.set_title(title or "Overall selectivity referred to RF")
@@ -224,7 +242,12 @@ def stages_png(offsets_hz, curves, overall_db, spacing_hz, *, title="", floor_db
 
 def image_png(designed, measured, image_offset_hz, spacing_hz, image_rejection_db, *, title="",
               floor_db=-140.0) -> bytes:
-    """The image region: designed line and measured points around ``image_offset_hz``."""
+    """The image region: designed line and measured points around ``image_offset_hz``.
+
+    ``designed`` should be a fine grid (the report gives 200 points per channel spacing): the response of an
+    elliptic stage has notches that a coarse one draws as a polygon. Measured points below the figure's
+    range are marked as such (:func:`_measured_points`).
+    """
     fig, ctx = _figure()
     ax = fig.add_subplot(1, 1, 1)
     d = np.asarray(designed, dtype=float).reshape(-1, 2)
@@ -233,11 +256,6 @@ def image_png(designed, measured, image_offset_hz, spacing_hz, image_rejection_d
     rel = (d[sel, 0] - image_offset_hz) / 1e3
     _channel_grid(ax, spacing_hz / 1e3, 3 * spacing_hz / 1e3)
     ax.plot(rel, np.maximum(d[sel, 1], floor_db), color=OKABE_ITO["blue"], lw=1.8, label="designed")
-    if measured is not None and len(measured):
-        m = np.asarray(measured, dtype=float).reshape(-1, 2)
-        ms = np.abs(m[:, 0] - image_offset_hz) <= span
-        ax.plot((m[ms, 0] - image_offset_hz) / 1e3, np.maximum(m[ms, 1], floor_db), ls="none", marker="o",
-                ms=4.5, mfc="none", color=OKABE_ITO["vermillion"], label="measured")
     if image_rejection_db is None:
         # no image response at all (an ideal quadrature mixer): infinite rejection, nothing to draw
         ax.plot([], [], color=OKABE_ITO["green"], ls="--", lw=1, label="image rejection infinite (no image response)")
@@ -251,6 +269,10 @@ def image_png(designed, measured, image_offset_hz, spacing_hz, image_rejection_d
     finite = finite[np.isfinite(finite)]
     lo = min((float(finite.min()) if finite.size else floor_db) - 10, level - 20)
     ax.set_ylim(max(lo, floor_db), max(level + 30, 5))
+    if measured is not None and len(measured):
+        m = np.asarray(measured, dtype=float).reshape(-1, 2)
+        ms = np.abs(m[:, 0] - image_offset_hz) <= span
+        _measured_points(ax, (m[ms, 0] - image_offset_hz) / 1e3, m[ms, 1], "measured")
     ax.set_xlabel(f"offset from the image frequency ({image_offset_hz / 1e3:+g} kHz from the tune), kHz")
     ax.set_ylabel("response relative to tuned carrier, dB")
     ax.set_title(title or "Image region")
