@@ -7,6 +7,8 @@ against ``report.json``), its method and its source.
 
 from __future__ import annotations
 
+from functools import partial
+
 from .html import _e, _img, _num, _row, _span
 from .text import as_audio_hz, as_db1, as_db2, as_plain, as_signed_db2, fixed_text
 
@@ -16,16 +18,9 @@ __all__ = ["datasheet_html", "DATASHEET_FIGURES"]
 DATASHEET_FIGURES = ("sensitivity.png", "fidelity.png", "distortion.png")
 
 
-def _db4(v):
-    return fixed_text(v, 4)
-
-
-def _slope(v):
-    return fixed_text(v, 3)
-
-
-def _us_plain(v):
-    return fixed_text(v, 1)
+_db4 = partial(fixed_text, decimals=4)
+_slope = partial(fixed_text, decimals=3)
+_us_plain = partial(fixed_text, decimals=1)
 
 
 def _notes(sec) -> str:

@@ -12,9 +12,10 @@ from __future__ import annotations
 
 import base64
 import html
+from functools import partial
 
 from .text import (as_db1, as_db2, as_diff_hz, as_hz, as_offset, as_pct, as_plain, as_q, as_signed_db2, as_us,
-                   fixed_text, frequency_text)
+                   as_hz01, fixed_text)
 from .words import stage_words
 
 __all__ = ["render_html", "lookup"]
@@ -152,20 +153,9 @@ def _q_tables(data):
     return t1 + t2 + note
 
 
-def _ratio(v):
-    return fixed_text(v, 2)
-
-
-def _signed_ratio(v):
-    return fixed_text(v, 3, signed=True)
-
-
-def _hz01(v):
-    return frequency_text(v, 0.1)
-
-
-def _ms(v):
-    return fixed_text(v, 1)
+_ratio = partial(fixed_text, decimals=2)
+_signed_ratio = partial(fixed_text, decimals=3, signed=True)
+_ms = partial(fixed_text, decimals=1)
 
 
 def _carrier_table(data):
@@ -267,8 +257,8 @@ def render_html(data: dict, figures: dict) -> str:
             parts.append('<p class="note">Spectrum: %s-point FFT, Hann window, bins %s, resolution bandwidth '
                          "(the window's equivalent noise bandwidth) %s; level in dBFS per RBW: a carrier reads "
                          "its amplitude, noise its power within the RBW.</p>"
-                         % (_span(d, "spectrum.fft_points"), _span(d, "spectrum.bin_hz", _hz01),
-                            _span(d, "spectrum.rbw_hz", _hz01)))
+                         % (_span(d, "spectrum.fft_points"), _span(d, "spectrum.bin_hz", as_hz01),
+                            _span(d, "spectrum.rbw_hz", as_hz01)))
         parts.append(_carrier_table(d))
     for name in sorted(figures):
         if name not in ("selectivity.png", "stages.png", "image.png", "group_delay.png", "spectrum.png",

@@ -8,9 +8,10 @@ with its unit). Each formatter's resolution is that of the figure it prints.
 from __future__ import annotations
 
 import math
+from functools import partial
 
 __all__ = ["frequency_text", "fixed_text", "as_hz", "as_offset", "as_diff_hz", "as_audio_hz", "as_db1", "as_db2",
-           "as_signed_db2", "as_signed_db1", "as_q", "as_pct", "as_us", "as_plain"]
+           "as_signed_db2", "as_signed_db1", "as_q", "as_pct", "as_us", "as_hz01", "as_plain"]
 
 
 def _strip(text: str) -> str:
@@ -85,36 +86,11 @@ def as_audio_hz(v):
     return frequency_text(v, 0.1 if abs(v) < 1e3 else 1.0)
 
 
-def as_db1(v):
-    """A level or ratio in dB to 0.1 dB."""
-    return fixed_text(v, 1)
-
-
-def as_db2(v):
-    """A level or ratio in dB to 0.01 dB."""
-    return fixed_text(v, 2)
-
-
-def as_signed_db1(v):
-    """A difference in dB to 0.1 dB, signed."""
-    return fixed_text(v, 1, signed=True)
-
-
-def as_signed_db2(v):
-    """A difference in dB to 0.01 dB, signed."""
-    return fixed_text(v, 2, signed=True)
-
-
-def as_q(v):
-    """A quality factor to 0.1."""
-    return fixed_text(v, 1)
-
-
-def as_pct(v):
-    """A percentage to 0.1 %, signed."""
-    return fixed_text(v, 1, signed=True)
-
-
-def as_us(v):
-    """Seconds as µs to 0.1 µs."""
-    return fixed_text(v, 1, "µs", scale=1e6)
+as_db1 = partial(fixed_text, decimals=1)                 #: a level or ratio in dB to 0.1 dB
+as_db2 = partial(fixed_text, decimals=2)                 #: a level or ratio in dB to 0.01 dB
+as_signed_db1 = partial(fixed_text, decimals=1, signed=True)  #: a difference in dB to 0.1 dB
+as_signed_db2 = partial(fixed_text, decimals=2, signed=True)  #: a difference in dB to 0.01 dB
+as_q = partial(fixed_text, decimals=1)                   #: a quality factor to 0.1
+as_pct = partial(fixed_text, decimals=1, signed=True)    #: a percentage to 0.1 %, signed
+as_us = partial(fixed_text, decimals=1, unit="µs", scale=1e6)  #: seconds as µs to 0.1 µs
+as_hz01 = partial(frequency_text, resolution_hz=0.1)     #: a frequency to 0.1 Hz
