@@ -133,11 +133,11 @@ def _q_tables(data):
             _num(data, base + "end_resonator_q_in", as_q), _num(data, base + "end_resonator_q_out", as_q)))
     t1 = ("<table>" + "".join(rows) + "</table>"
           '<p class="note" id="q-note">Loaded Q: of the circuit for single-tuned and double-tuned stages (and the '
-          "preselector); for filter stages (butterworth, chebyshev, elliptic, bessel) the stage's centre over its "
+          "preselector); for filter stages (Butterworth, Chebyshev, elliptic, Bessel band-pass) the stage's centre over its "
           "design bandwidth, f0/BW, not the Q of the resonators that would build it. Design bandwidth: the "
-          "-3 dB full width; for chebyshev and elliptic stages the ripple band. End-resonator Q: the external Q "
+          "-3 dB full width; for Chebyshev and elliptic stages the ripple band. End-resonator Q: the external Q "
           "the first and last resonators of a coupled-resonator Butterworth or Chebyshev filter must be loaded to, "
-          "g0·g1·f0/BW and g_n·g_(n+1)·f0/BW from the ladder prototype's g-values (not given for bessel and "
+          "g0·g1·f0/BW and g_n·g_(n+1)·f0/BW from the ladder prototype's g-values (not given for Bessel and "
           "elliptic stages, which have no closed-form g-values).</p>")
     rows = ["<tr><th></th><th>at RF (the tune)</th><th>at the IF</th></tr>",
             _row("equivalent Q, exact (one single-tuned circuit)",
