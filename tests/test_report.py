@@ -41,10 +41,16 @@ def test_json_keys(report):
     json.dumps(d, allow_nan=False)
 
 
+#: A number as the page prints it: digits, optionally a unit (the unit's size in report.json's SI units).
+_PRINTED = re.compile(r"([-+]?\d+(?:\.(\d+))?)(?: (Hz|kHz|MHz|µs))?")
+_UNIT = {None: 1.0, "Hz": 1.0, "kHz": 1e3, "MHz": 1e6, "µs": 1e-6}
+
+
 class _Collect(HTMLParser):
     def __init__(self):
         super().__init__()
         self.keyed = []      # (data-key, text)
+        self.values = {}     # data-key -> data-value (the JSON value as repr)
         self.numeric_td = []  # text of every numeric cell
         self.refs = []       # src/href values
         self.imgs = []
@@ -61,6 +67,8 @@ class _Collect(HTMLParser):
             self.imgs.append(a)
         if tag in ("td", "span"):
             self._key = a.get("data-key")
+            if self._key is not None and "data-value" in a:
+                self.values[self._key] = a["data-value"]
             self._td = True
             self._buf = ""
 
@@ -71,7 +79,7 @@ class _Collect(HTMLParser):
     def handle_endtag(self, tag):
         if tag in ("td", "span") and self._td:
             text = self._buf.strip()
-            if re.fullmatch(r"[-+]?\d+(\.\d*)?([eE][-+]?\d+)?", text):
+            if _PRINTED.fullmatch(text):
                 self.numeric_td.append(text)
             if self._key is not None:
                 self.keyed.append((self._key, text))
@@ -90,14 +98,22 @@ def _check_html_against_json(folder):
     assert sorted(i["data-name"] for i in p.imgs) == sorted(data["figures"])
     for name in data["figures"]:
         assert (folder / name).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
-    # every number in the tables is tagged and equals the JSON value
+    # every number in the tables is tagged; its data-value is the JSON value and its text that value as a
+    # reader reads it: kHz/MHz (never thousands of Hz, never "600000.0"), µs, rounded to the digits shown
     assert len(p.numeric_td) == sum(1 for k, t in p.keyed if t != "n/a")
     for key, text in p.keyed:
         v = lookup(data, key)
         if text == "n/a":
             assert v is None, key
-        else:
-            assert float(text) == v, key
+            continue
+        assert float(p.values[key]) == v, key
+        m = _PRINTED.fullmatch(text)
+        assert m, (key, text)
+        decimals = len(m.group(2) or "")
+        scale = _UNIT[m.group(3)]
+        assert abs(float(m.group(1)) * scale - v) <= 0.5 * 10.0 ** -decimals * scale * (1 + 1e-9), (key, text, v)
+        if m.group(3) in ("Hz", "kHz", "MHz"):
+            assert abs(float(m.group(1))) < 1000 and not m.group(1).endswith(".0"), (key, text)
     return data, p
 
 
@@ -267,3 +283,176 @@ def test_most_stages_and_an_odd_name_draw_without_warnings(tmp_path):
         rep = build_report({"name": "名前 " + "long " * 60, "if_stage": [stage] * 16}, 1e6, measure=False)
         write_report(rep, tmp_path / "r")
     assert len(rep.data["designed"]["q"]["stages"]) == 17      # the preselector and 16 IF stages
+
+
+def test_stages_are_described_in_words_in_the_legend_and_the_table(tmp_path, monkeypatch):
+    """The legend and the Q table say "double-tuned pair (two resonators)", not the config's
+    "double_tuned, order 1"; the poles counted are those of the design (scipy's lp2bp_zpk doubles them)."""
+    from sdrx.chain import design_chain
+    from sdrx.report import plots
+
+    seen = []
+    draw = plots.stages_png
+    monkeypatch.setattr(plots, "stages_png", lambda offs, curves, *a, **k: seen.extend(c[0] for c in curves)
+                        or draw(offs, curves, *a, **k))
+    rep = build_report("wide", 1130e3, measure=False)
+    assert seen == ["preselector: single tuned circuit tracking the tune",
+                    "IF stage 1: Butterworth band-pass, 3 resonators (6 poles)",
+                    "IF stage 2: double-tuned pair (two resonators)"]
+    d = design_chain("wide")
+    assert len(d.stages[0].p) == 6 and len(d.stages[1].p) == 4  # two coupled circuits: four poles
+    write_report(rep, tmp_path / "r")
+    page = (tmp_path / "r" / "report.html").read_text()
+    assert "<td>double-tuned pair (two resonators)</td>" in page
+    assert "<td>Butterworth band-pass, 3 resonators (6 poles)</td>" in page
+    for config_word in ("single_tuned", "double_tuned", "butterworth"):
+        assert f"<td>{config_word}</td>" not in page
+
+
+def test_page_prints_frequencies_in_khz_and_delay_in_us(tmp_path):
+    rep = build_report("medium", 600e3, measure=False)
+    write_report(rep, tmp_path / "r")
+    page = (tmp_path / "r" / "report.html").read_text()
+    _check_html_against_json(tmp_path / "r")
+    assert re.search(r">\d+\.0 ?Hz<|>\d{4,}(\.\d+)?<", page) is None
+    assert 'data-key="tune_hz" data-value="600000.0">600 kHz<' in page
+    assert 'data-key="image_hz" data-value="1510000.0">1.51 MHz<' in page
+    at = rep.data["designed"]["group_delay"]["at_tune_s"]
+    assert f'data-value="{at!r}">{at * 1e6:.1f} µs<' in page
+
+
+def test_a_long_chain_name_wraps_inside_the_figures(capture, monkeypatch):
+    """A 200-character chain name: every title is wrapped (or cut) and lies inside its figure, as
+    measured by matplotlib's own renderer after the layout."""
+    from sdrx.report import plots
+
+    drawn = []
+    save = plots._png
+    monkeypatch.setattr(plots, "_png", lambda fig, ctx: drawn.append(fig) or save(fig, ctx))
+    for name in ("chain " * 34)[:200], "x" * 200:
+        drawn.clear()
+        rep = build_report({"name": name}, TUNE, capture=capture[0], measure=False)
+        assert len(drawn) == len(rep.figures) == 5
+        for fig in drawn:
+            renderer = fig.canvas.get_renderer()
+            titles = plots._titles(fig)
+            assert titles
+            for t in titles:
+                box = t.get_window_extent(renderer)
+                assert 0 <= box.x0 and box.x1 <= fig.bbox.width, t.get_text()
+                assert 0 <= box.y0 and box.y1 <= fig.bbox.height, t.get_text()
+                assert t.get_text().count("\n") < plots.TITLE_LINES
+        assert any("\n" in t.get_text() for fig in drawn for t in plots._titles(fig))
+
+
+def test_spectrum_states_its_resolution_bandwidth(capture, tmp_path, monkeypatch):
+    """The RBW printed on the spectrum (and kept in report.json) is the Hann window's equivalent noise
+    bandwidth fs·Σw²/(Σw)² (Harris 1978, Proc. IEEE 66(1), sec. IV-A), computed here from scipy's window."""
+    from scipy.signal import get_window
+
+    from sdrx.report import plots
+
+    drawn = {}
+    draw = plots.spectrum_png
+    monkeypatch.setattr(plots, "spectrum_png", lambda *a, **k: drawn.update(k) or draw(*a, **k))
+    rep = build_report("medium", TUNE, capture=capture[0], measure=False)
+    s = rep.data["spectrum"]
+    fs, n = 250e3, s["fft_points"]
+    assert n & (n - 1) == 0 and fs / n <= 10e3 / 20 < 2 * fs / n   # the next power of two of fs / (spacing/20)
+    w = get_window("hann", n, fftbins=False)                       # symmetric, as numpy's hanning
+    enbw_hz = fs * np.sum(w ** 2) / np.sum(w) ** 2
+    assert s["rbw_hz"] == pytest.approx(enbw_hz, abs=1e-3) and s["bin_hz"] == pytest.approx(fs / n, abs=1e-3)
+    # Harris Table 1: 1.50 bins for the (DFT-even) Hann window; the symmetric N-point one, zero at both ends,
+    # has Σw = (N-1)/2 and Σw² = 3(N-1)/8: 1.5·N/(N-1) bins
+    assert s["rbw_hz"] / s["bin_hz"] == pytest.approx(1.5 * n / (n - 1), rel=1e-5)
+    assert drawn["rbw_hz"] == pytest.approx(enbw_hz, rel=1e-12)
+    write_report(rep, tmp_path / "r")
+    page = (tmp_path / "r" / "report.html").read_text()
+    assert f">{enbw_hz:.1f} Hz</span>; level in dBFS per RBW" in page
+    _check_html_against_json(tmp_path / "r")
+
+
+def test_spectrum_text_names_the_rbw(monkeypatch):
+    from sdrx.report import plots
+
+    figs = []
+    save = plots._png
+    monkeypatch.setattr(plots, "_png", lambda fig, ctx: figs.append(fig) or save(fig, ctx))
+    f = np.linspace(990e3, 1010e3, 50)
+    plots.spectrum_png(f, -100 + 0 * f, 1e6, (996e3, 1004e3), 1.91e6, [], rbw_hz=439.56, bin_hz=292.97)
+    (fig,) = figs
+    assert fig._supxlabel.get_text().startswith("RBW 439.6 Hz: noise bandwidth of the Hann window, bins 293 Hz")
+    assert fig.axes[0].get_ylabel() == "level, dBFS per RBW"
+
+
+def test_spectrum_floor_reads_the_noise_power_within_the_rbw(tmp_path):
+    """White noise of power σ² (complex, E|x|² = σ²) reads σ²·RBW/fs on the spectrum: the level is dBFS per
+    RBW. 146 segments of 512 bins: the mean's spread is about 0.01 dB."""
+    from sdrx.report.spectrum import capture_spectrum, spectrum_resolution
+
+    fs, sigma2 = 250e3, 1e-6
+    rng = np.random.default_rng(11)
+    x = np.sqrt(sigma2 / 2) * (rng.standard_normal(75000) + 1j * rng.standard_normal(75000))
+    path = tmp_path / "noise.sigmf-meta"
+    with open_writer(path, fs=fs, kind="iq", datatype="cf32_le", center_hz=1e6) as w:
+        w.write(x.astype(np.complex64))
+    from sdrx.capture import open_capture
+
+    _f, level = capture_spectrum(open_capture(path), 500.0)
+    r = spectrum_resolution(fs, 500.0)
+    mean_db = 10 * np.log10(np.mean(10 ** (level / 10)))
+    assert mean_db == pytest.approx(10 * np.log10(sigma2 * r.rbw_hz / fs), abs=0.05)
+
+
+def test_image_curve_is_drawn_on_a_fine_grid(monkeypatch):
+    """Between the drawn samples the straight segments stay within 0.05 dB of the true response (above
+    -100 dB, away from the elliptic stage's notches); report.json's coarse curve (spacing/10 steps near the
+    image) missed by several dB."""
+    from sdrx.chain import design_chain
+    from sdrx.analysis.selectivity import relative_response_db
+    from sdrx.report import plots
+
+    got = {}
+    draw = plots.image_png
+    monkeypatch.setattr(plots, "image_png", lambda designed, *a, **k: got.update(d=np.asarray(designed))
+                        or draw(designed, *a, **k))
+    rep = build_report("narrow", 1130e3, spacing_hz=9e3, measure=False)
+    design = design_chain("narrow")
+
+    def worst(curve):
+        o, v = curve[:, 0], curve[:, 1]
+        mid = (o[1:] + o[:-1]) / 2
+        true = relative_response_db(design, 1130e3, 1130e3 + mid)
+        keep = (np.minimum(v[1:], v[:-1]) > -100) & (true > -100)
+        return float(np.max(np.abs((v[1:] + v[:-1])[keep] / 2 - true[keep])))
+
+    assert worst(got["d"]) < 0.05
+    coarse = np.asarray([r for r in rep.data["designed"]["response"] if r[0] > 450e3], dtype=float)
+    assert worst(coarse) > 1.0   # the polygon of the issue
+
+
+def test_measured_points_below_the_floor_are_marked(monkeypatch):
+    """A test carrier reading below the figure's range is drawn on the floor with its own marker and
+    legend entry, not as a circle at the floor."""
+    from sdrx.report import plots
+
+    figs = []
+    save = plots._png
+    monkeypatch.setattr(plots, "_png", lambda fig, ctx: figs.append(fig) or save(fig, ctx))
+    im = 910e3
+    o = im + np.linspace(-27e3, 27e3, 541)
+    designed = np.column_stack([o, -40 - 2e-3 * np.abs(o - im) - 1e-7 * (o - im) ** 2])
+    measured = [[im, -40.0], [im + 9e3, -60.0], [im + 17e3, -143.3], [im - 18e3, -float("inf")]]
+    plots.image_png(designed, measured, im, 9e3, 40.0)
+    plots.selectivity_png(designed - [im, 0], [[0.0, 0.0], [18e3, -120.0]], 9e3, {})
+    for fig, below, above in ((figs[0], [17.0, -18.0], [0.0, 9.0]), (figs[1], [18.0], [0.0])):
+        ax = fig.axes[0]
+        bottom = ax.get_ylim()[0]
+        tri = [ln for ln in ax.get_lines() if ln.get_marker() == "v" and len(ln.get_xdata())
+               and ln.get_label().startswith("measured below")]
+        (tri,) = tri
+        assert sorted(tri.get_xdata()) == sorted(below) and set(tri.get_ydata()) == {bottom}
+        assert tri.get_label() == f"measured below {bottom:g} dB (drawn on the floor)"
+        (circ,) = [ln for ln in ax.get_lines() if ln.get_marker() == "o"]
+        assert sorted(circ.get_xdata()) == sorted(above) and min(circ.get_ydata()) > bottom
+        assert tri.get_label() in [t.get_text() for t in ax.get_legend().get_texts()]

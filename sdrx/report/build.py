@@ -23,6 +23,7 @@ from ..limits import MAX_POINTS, MIN_POINTS
 from ..units import format_frequency
 from ..analysis import selectivity as sel
 from ..analysis.agc_figures import measure_agc
+from .words import short_name, stage_labels
 
 __all__ = ["Report", "build_report", "write_report", "report_files", "GROUP_DELAY_METHOD"]
 
@@ -30,10 +31,16 @@ GROUP_DELAY_METHOD = ("numerical derivative of the analog responses' phase: cent
                       "IF stages with respect to the IF frequency, preselector with respect to RF, summed")
 MEASURE_METHOD = ("single-signal method (ITU-R SM.332): one unmodulated test carrier at a time, AGC held, "
                   "carrier level at the detector, relative to the level of a carrier at the tune")
+Q_METHOD = ("one single-tuned circuit, exact universal resonance curve 10*log10(1+Q^2 rho^2) at "
+            "tune+spacing (worse side), rejection = smaller of the two at +-1 spacing; shortcut "
+            "Q = 10^(x/20)*f0/(2*spacing)")
 
 #: Every file a report may hold (the figures depend on --capture).
 KNOWN_FILES = ("report.json", "report.html", "selectivity.png", "stages.png", "image.png", "group_delay.png",
                "spectrum.png")
+
+#: Points of the designed curves drawn in selectivity.png and image.png (200 per spacing over ±3 spacings).
+FIGURE_POINTS = 1201
 
 #: Carriers within this many channel spacings of the tune are listed (and any near the image).
 NEAR_CHANNELS = 5
@@ -163,12 +170,40 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
         Bad tuning or spacing; a tuning outside the capture's band.
     CaptureError
         From the capture reader.
+
+    Notes
+    -----
+    The steps, in order: check the options (:func:`_checked_options`), open
+    the capture (:func:`_opened_capture`), the designed figures
+    (:func:`_designed_section`), the measured ones (:func:`_measured_section`),
+    the figures of the design (:func:`_design_figures`) and, with a capture,
+    its carriers and spectrum (:func:`_add_capture`).
     """
     from ..chain import design_chain
-    from ..units import parse_frequency
-    from . import plots
 
     design = design_chain(chain)
+    tune, spacing = _checked_options(design, tune_hz, spacing_hz, path, points)
+    reader, plan = _opened_capture(capture, capture_kw, tune, spacing, correct, ppm, start_s, duration_s)
+    designed = sel.designed_figures(design, tune, spacing)
+    des = _designed_section(design, tune, spacing, designed)
+    meas, datasheet_figs = None, {}
+    if measure:
+        meas, datasheet_figs = _measured_section(design, tune, spacing, designed, des, path, points,
+                                                 noise_figure_db, progress)
+    data = _report_head(design, tune, spacing, des, meas)
+    title = f"{short_name(design.name)}: tuned to {format_frequency(tune)}, IF {format_frequency(design.if_hz)}"
+    figs = _design_figures(design, tune, spacing, designed, des, meas, title)
+    if reader is not None:
+        _add_capture(data, figs, reader, plan, design, tune, spacing, designed, start_s, duration_s, title)
+    figs.update(datasheet_figs)
+    data["figures"] = sorted(figs)
+    return Report(data, figs)
+
+
+def _checked_options(design, tune_hz, spacing_hz, path, points):
+    """The tuning and spacing in Hz, checked against the design; ``path`` and ``points`` checked."""
+    from ..units import parse_frequency
+
     tune = parse_frequency(tune_hz, "--tune")
     spacing = parse_frequency(spacing_hz, "--spacing")
     tune, spacing = sel.validate_tuning(design, tune, spacing)
@@ -177,82 +212,101 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
     if isinstance(points, bool) or not isinstance(points, int) or not MIN_POINTS <= points <= MAX_POINTS:
         raise ParameterError(f"--points {points!r}: must be a whole number from {MIN_POINTS} to {MAX_POINTS} "
                              "(each point is a receiver run)")
-    reader = None
-    if capture is not None:
-        from ..capture import open_capture
+    return tune, spacing
 
-        reader = open_capture(capture, **(capture_kw or {}))
-        lo_b, hi_b = reader.info.band_hz
-        if not (lo_b < tune < hi_b):
-            raise ParameterError(
-                f"--tune {format_frequency(tune)}: outside the band of capture {reader.info.path} "
-                f"({format_frequency(lo_b)} to {format_frequency(hi_b)})")
-        from ..capture.correct import corrected_reader, plan_corrections
 
-        plan = plan_corrections(reader, correct, ppm=ppm, spacing_hz=spacing, start_s=start_s,
-                                duration_s=duration_s)
-        reader = corrected_reader(reader, plan)
-    elif correct not in (None, "none", ()) or ppm is not None:
-        raise ParameterError("--correct/--ppm: only apply with --capture CAPTURE")
+def _opened_capture(capture, capture_kw, tune, spacing, correct, ppm, start_s, duration_s):
+    """The capture's corrected reader and its corrections plan, or ``(None, None)`` without a capture."""
+    if capture is None:
+        if correct not in (None, "none", ()) or ppm is not None:
+            raise ParameterError("--correct/--ppm: only apply with --capture CAPTURE")
+        return None, None
+    from ..capture import open_capture
+    from ..capture.correct import corrected_reader, plan_corrections
 
-    designed = sel.designed_figures(design, tune, spacing)
-    dres = lambda o: sel.relative_response_db(design, tune, tune + np.asarray(o, dtype=float))
+    reader = open_capture(capture, **(capture_kw or {}))
+    lo_b, hi_b = reader.info.band_hz
+    if not (lo_b < tune < hi_b):
+        raise ParameterError(
+            f"--tune {format_frequency(tune)}: outside the band of capture {reader.info.path} "
+            f"({format_frequency(lo_b)} to {format_frequency(hi_b)})")
+    plan = plan_corrections(reader, correct, ppm=ppm, spacing_hz=spacing, start_s=start_s, duration_s=duration_s)
+    return corrected_reader(reader, plan), plan
+
+
+def _designed_response(design, tune):
+    """Designed response relative to the tune, as a function of offsets (Hz) from it."""
+    return lambda o: sel.relative_response_db(design, tune, tune + np.asarray(o, dtype=float))
+
+
+def _designed_section(design, tune, spacing, designed) -> dict:
+    """The ``designed`` block: figures, Q summary and group delay."""
     des = _figures_json(designed)
-    qs = sel.q_summary(design, tune, spacing, designed)
-    des["q"] = {
-        "stages": [{"stage": s["stage"], "response": s["response"], "order": s["order"], "f0_hz": _hz(s["f0_hz"]),
-                    "bandwidth_hz": _hz(s["bandwidth_hz"]), "loaded_q": _q(s["loaded_q"]),
-                    "end_resonator_q_in": None if s["end_resonator_q_in"] is None else _q(s["end_resonator_q_in"]),
-                    "end_resonator_q_out": None if s["end_resonator_q_out"] is None else _q(s["end_resonator_q_out"])}
-                   for s in qs["stages"]],
-        "rejection_db": _db(qs["rejection_db"]),
-        "offset_hz": _hz(qs["offset_hz"]),
-        "equivalent_rf": _q(qs["equivalent_rf"]),
-        "equivalent_if": _q(qs["equivalent_if"]),
-        "shortcut_rf": _q(qs["shortcut_rf"]),
-        "shortcut_if": _q(qs["shortcut_if"]),
-        "shortcut_rf_error_pct": _q(qs["shortcut_rf_error_pct"]),
-        "shortcut_if_error_pct": _q(qs["shortcut_if_error_pct"]),
-        "method": "one single-tuned circuit, exact universal resonance curve 10*log10(1+Q^2 rho^2) at "
-                  "tune+spacing (worse side), rejection = smaller of the two at +-1 spacing; shortcut "
-                  "Q = 10^(x/20)*f0/(2*spacing)",
-    }
-    e3 = designed.edges_hz["3"]
+    des["q"] = _q_json(sel.q_summary(design, tune, spacing, designed))
+    des["group_delay"] = _group_delay_json(design, tune, *_group_delay_curve(design, tune, spacing, designed))
+    return des
+
+
+def _q_json(qs) -> dict:
+    """The Q summary rounded for ``report.json``, with its method."""
+    stages = [{"stage": s["stage"], "response": s["response"], "order": s["order"], "f0_hz": _hz(s["f0_hz"]),
+               "bandwidth_hz": _hz(s["bandwidth_hz"]), "loaded_q": _q(s["loaded_q"]),
+               "end_resonator_q_in": None if s["end_resonator_q_in"] is None else _q(s["end_resonator_q_in"]),
+               "end_resonator_q_out": None if s["end_resonator_q_out"] is None else _q(s["end_resonator_q_out"])}
+              for s in qs["stages"]]
+    out = {"stages": stages, "rejection_db": _db(qs["rejection_db"]), "offset_hz": _hz(qs["offset_hz"])}
+    for k in ("equivalent_rf", "equivalent_if", "shortcut_rf", "shortcut_if", "shortcut_rf_error_pct",
+              "shortcut_if_error_pct"):
+        out[k] = _q(qs[k])
+    out["method"] = Q_METHOD
+    return out
+
+
+def _group_delay_curve(design, tune, spacing, designed):
+    """Offsets (1.25 times the −6 dB half-width each side, 201 points), group delay there, −3 dB edges."""
     e6 = designed.edges_hz["6"]
-    gd_span = 1.25 * max(abs(e6[0] or spacing / 2), abs(e6[1] or spacing / 2))
-    gd_offs = np.linspace(-gd_span, gd_span, 201)
-    gd = sel.group_delay_s(design, tune, gd_offs)
-    in3 = (gd_offs >= (e3[0] if e3[0] is not None else -np.inf)) & (gd_offs <= (e3[1] if e3[1] is not None else np.inf))
-    des["group_delay"] = {
+    span = 1.25 * max(abs(e6[0] or spacing / 2), abs(e6[1] or spacing / 2))
+    offs = np.linspace(-span, span, 201)
+    return offs, sel.group_delay_s(design, tune, offs), designed.edges_hz["3"]
+
+
+def _group_delay_json(design, tune, offs, gd, e3) -> dict:
+    """Group delay at the tune, its variation within the −3 dB band and the curve, seconds."""
+    lo = e3[0] if e3[0] is not None else -np.inf
+    hi = e3[1] if e3[1] is not None else np.inf
+    in3 = (offs >= lo) & (offs <= hi)
+    return {
         "method": GROUP_DELAY_METHOD,
         "at_tune_s": round(float(sel.group_delay_s(design, tune, [0.0])[0]), 9),
         "variation_in_3db_s": round(float(gd[in3].max() - gd[in3].min()), 9) if in3.any() else None,
-        "response": [[_hz(o), round(float(t), 9)] for o, t in zip(gd_offs, gd)],
+        "response": [[_hz(o), round(float(t), 9)] for o, t in zip(offs, gd)],
     }
 
-    meas = None
-    if measure:
-        measured = sel.measured_figures(design, tune, spacing, designed, path=path, points=points,
+
+def _measured_section(design, tune, spacing, designed, des, path, points, noise_figure_db, progress):
+    """The ``measured`` block (test carriers, AGC, datasheet sections) and the datasheet figures."""
+    from .datasheet import datasheet_sections
+
+    measured = sel.measured_figures(design, tune, spacing, designed, path=path, points=points, progress=progress)
+    meas = _figures_json(measured)
+    meas["path"] = path
+    meas["method_detail"] = MEASURE_METHOD
+    meas["difference"] = _difference(meas, des, _designed_response(design, tune))
+    meas["agc"] = measure_agc(design, tune, path)
+    sections, figs = datasheet_sections(design, tune, spacing, path=path, noise_figure_db=noise_figure_db,
                                         progress=progress)
-        meas = _figures_json(measured)
-        meas["path"] = path
-        meas["method_detail"] = MEASURE_METHOD
-        meas["difference"] = _difference(meas, des, dres)
-        meas["agc"] = measure_agc(design, tune, path)
-        from .datasheet import datasheet_sections
+    meas.update(sections)
+    return meas, figs
 
-        sections, datasheet_figs = datasheet_sections(design, tune, spacing, path=path,
-                                                      noise_figure_db=noise_figure_db, progress=progress)
-        meas.update(sections)
 
-    lo_hz = design.lo_hz(tune)
-    image = design.image_hz(tune)
-    data = {
+def _report_head(design, tune, spacing, des, meas) -> dict:
+    """The report's data: the tuning's frequencies, the designed and measured blocks; no capture yet."""
+    return {
         "chain": design.name,
         "tune_hz": _hz(tune),
         "if_hz": _hz(design.if_hz),
-        "lo_hz": _hz(lo_hz),
-        "image_hz": _hz(image),
+        "lo_hz": _hz(design.lo_hz(tune)),
+        "image_hz": _hz(design.image_hz(tune)),
         "spacing_hz": _hz(spacing),
         "injection": design.injection,
         "designed": des,
@@ -261,41 +315,72 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
         "carriers": None,
     }
 
-    # figures
-    figs = {}
-    title = f"{design.name}: tuned to {format_frequency(tune)}, IF {format_frequency(design.if_hz)}"
+
+def _design_figures(design, tune, spacing, designed, des, meas, title) -> dict:
+    """Selectivity, each stage, image, group delay and (measured) AGC figures: name -> PNG bytes."""
+    from . import plots
+
+    dres = _designed_response(design, tune)
+    image = design.image_hz(tune)
     mresp = meas["response"] if meas else None
-    figs["selectivity.png"] = plots.selectivity_png(des["response"], mresp, spacing, des["adjacent_rejection_db"],
+    figs = {}
+    figs["selectivity.png"] = plots.selectivity_png(_fine_curve(dres, 0.0, spacing), mresp, spacing,
+                                                    des["adjacent_rejection_db"],
                                                     title=f"Overall selectivity referred to RF - {title}")
     st_offs = np.linspace(-3 * spacing, 3 * spacing, 241)
-    figs["stages.png"] = plots.stages_png(st_offs, sel.stage_responses_db(design, tune, st_offs), dres(st_offs),
-                                          spacing, title=f"Each stage referred to RF - {title}")
-    figs["image.png"] = plots.image_png(des["response"], mresp, image - tune, spacing, des["image_rejection_db"],
+    curves = [(label, db) for label, (_config, db) in zip(stage_labels(design),
+                                                          sel.stage_responses_db(design, tune, st_offs))]
+    figs["stages.png"] = plots.stages_png(st_offs, curves, dres(st_offs), spacing,
+                                          title=f"Each stage referred to RF - {title}")
+    figs["image.png"] = plots.image_png(_fine_curve(dres, image - tune, spacing), mresp, image - tune, spacing,
+                                        des["image_rejection_db"],
                                         title=f"Image region ({format_frequency(image)}) - {title}")
+    gd_offs, gd, e3 = _group_delay_curve(design, tune, spacing, designed)
     figs["group_delay.png"] = plots.group_delay_png(gd_offs, gd, e3, title=f"Group delay - {title}")
     if meas:
         a = meas["agc"]
         figs["agc.png"] = plots.agc_png(a["characteristic"], a["range_db"], a["range_dbfs"], a["reference_dbfs"],
                                         title=f"AGC characteristic - {title}")
+    return figs
 
-    if reader is not None:
-        from .spectrum import capture_spectrum
 
-        data["capture"] = reader.info.to_json()
-        data["corrections"] = plan.to_json()
-        data["carriers"] = _carriers(reader, design, tune, spacing, start_s, duration_s, None)
-        f, lv = capture_spectrum(reader, spacing / 20, start_s=start_s, duration_s=duration_s)
-        near = np.abs(f - tune) <= (NEAR_CHANNELS + 0.5) * spacing
-        nim = np.abs(f - image) <= 3.5 * spacing
-        cars = [(c["freq_hz"], c["antenna_dbfs"]) for c in data["carriers"]]
-        figs["spectrum.png"] = plots.spectrum_png(
-            f[near], lv[near], tune, (tune + e6[0], tune + e6[1]) if None not in e6 else (tune, tune), image, cars,
-            image_freqs_hz=f[nim] if nim.sum() > 4 else None, image_level_dbfs=lv[nim] if nim.sum() > 4 else None,
-            title=f"Capture spectrum - {title}")
-    if meas is not None:
-        figs.update(datasheet_figs)
-    data["figures"] = sorted(figs)
-    return Report(data, figs)
+def _fine_curve(dres, centre_hz, spacing):
+    """The designed response on a fine grid for a figure: ±3 spacings about ``centre_hz``, 200 points per
+    spacing (report.json keeps its coarser curve)."""
+    offs = centre_hz + np.linspace(-3 * spacing, 3 * spacing, FIGURE_POINTS)
+    return np.column_stack([offs, dres(offs)])
+
+
+def _add_capture(data, figs, reader, plan, design, tune, spacing, designed, start_s, duration_s, title):
+    """Add the capture, its corrections and the carriers near the tuning to ``data``, its spectrum to ``figs``."""
+    data["capture"] = reader.info.to_json()
+    data["corrections"] = plan.to_json()
+    data["carriers"] = _carriers(reader, design, tune, spacing, start_s, duration_s, None)
+    figs["spectrum.png"], resolution = _spectrum_figure(reader, design, tune, spacing, designed, data["carriers"],
+                                                        start_s, duration_s, title)
+    data["spectrum"] = resolution.to_json()
+
+
+def _spectrum_figure(reader, design, tune, spacing, designed, carriers, start_s, duration_s, title):
+    """The capture's spectrum around the tuning (and around the image when the capture holds it).
+
+    Returns the PNG bytes and the spectrum's :class:`~sdrx.report.spectrum.Resolution`.
+    """
+    from . import plots
+    from .spectrum import capture_spectrum, spectrum_resolution
+
+    image = design.image_hz(tune)
+    e6 = designed.edges_hz["6"]
+    f, lv = capture_spectrum(reader, spacing / 20, start_s=start_s, duration_s=duration_s)
+    resolution = spectrum_resolution(reader.info.fs, spacing / 20)
+    near = np.abs(f - tune) <= (NEAR_CHANNELS + 0.5) * spacing
+    nim = np.abs(f - image) <= 3.5 * spacing
+    cars = [(c["freq_hz"], c["antenna_dbfs"]) for c in carriers]
+    png = plots.spectrum_png(
+        f[near], lv[near], tune, (tune + e6[0], tune + e6[1]) if None not in e6 else (tune, tune), image, cars,
+        image_freqs_hz=f[nim] if nim.sum() > 4 else None, image_level_dbfs=lv[nim] if nim.sum() > 4 else None,
+        title=f"Capture spectrum - {title}", rbw_hz=resolution.rbw_hz, bin_hz=resolution.bin_hz)
+    return png, resolution
 
 
 def report_files(out_dir, figures) -> list:

@@ -19,6 +19,7 @@ from ..analysis import fidelity as fid
 from ..analysis import sensitivity as sens
 from ..dsp.thermal import kt0_dbm_per_hz
 from ..units import format_frequency
+from .words import short_name
 
 __all__ = ["datasheet_sections", "METHODS", "SOURCES"]
 
@@ -185,7 +186,7 @@ def datasheet_sections(design, tune_hz: float, spacing_hz: float, *, path: str =
     step(3)
     sec = {"sensitivity": _sensitivity_json(s, nf_from, fs_from), "fidelity": _fidelity_json(f, design, tune_hz),
            "distortion": _distortion_json(d)}
-    where = f"{design.name}: tuned to {format_frequency(tune_hz)}, {path} path"
+    where = f"{short_name(design.name)}: tuned to {format_frequency(tune_hz)}, {path} path"
     figs = {
         "sensitivity.png": dp.sensitivity_png(sec["sensitivity"], title=f"Sensitivity - {where}"),
         "fidelity.png": dp.fidelity_png(sec["fidelity"], title=f"Audio fidelity, antenna to audio - {where}"),

@@ -59,6 +59,7 @@ def _figure():
 
     matplotlib.use("Agg", force=True)
     from cycler import cycler
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
     rc = dict(_RC)
@@ -66,6 +67,7 @@ def _figure():
     ctx = matplotlib.rc_context(rc)
     ctx.__enter__()
     fig = Figure(figsize=_SIZE, dpi=_DPI)
+    FigureCanvasAgg(fig)  # a renderer to measure the titles with (see _fit_titles)
     return fig, ctx
 
 
@@ -80,10 +82,76 @@ def _png(fig, ctx) -> bytes:
             warnings.filterwarnings("ignore", r"Glyph .* missing from", UserWarning)
             warnings.filterwarnings("ignore", r"Tight layout not applied", UserWarning)
             fig.tight_layout()
+            if _fit_titles(fig):
+                fig.tight_layout()
             fig.savefig(buf, format="png", dpi=_DPI, metadata={"Software": None})
     finally:
         ctx.__exit__(None, None, None)
     return buf.getvalue()
+
+
+#: A title takes at most this many lines; the rest of a longer one is cut with "…".
+TITLE_LINES = 3
+
+
+def _titles(fig) -> list:
+    """The figure's title texts: each axes' centre title and the figure's suptitle."""
+    out = [ax.title for ax in fig.axes]
+    if getattr(fig, "_suptitle", None) is not None:
+        out.append(fig._suptitle)
+    return [t for t in out if t.get_text()]
+
+
+def _fit_titles(fig, margin=0.96) -> bool:
+    """Wrap each title wider than the room about its centre onto at most :data:`TITLE_LINES` lines.
+
+    A chain's name can be as long as the user likes: the title is broken at
+    spaces where it can be (anywhere in a word that is longer than a line),
+    measured with the figure's renderer, and cut with "…" after the last line.
+    Returns whether any title changed (the layout is then made again).
+    """
+    import re
+    import textwrap
+
+    renderer = fig.canvas.get_renderer()
+    changed = False
+    for t in _titles(fig):
+        # a number stays on the line of its unit ("1 MHz"): a no-break space between them
+        text = re.sub(r"(\d) (?=[kMG]?Hz|dB)", "\\1\u00a0", t.get_text().replace("\n", " "))
+        box = t.get_window_extent(renderer)
+        centre = (box.x0 + box.x1) / 2
+        room = 2 * min(centre, fig.bbox.width - centre) * margin
+        width = box.width
+        changed = changed or width > room
+        chars = len(text)
+        while width > room and chars > 8:
+            chars = max(8, min(chars - 1, int(chars * room / width)))
+            lines = textwrap.wrap(text, chars, break_long_words=True)
+            if len(lines) > TITLE_LINES:
+                lines = lines[:TITLE_LINES]
+                lines[-1] = lines[-1][:max(1, chars - 1)].rstrip() + "…"
+            t.set_text("\n".join(lines))
+            width = t.get_window_extent(renderer).width
+    return changed
+
+
+def _measured_points(ax, x_khz, y_db, label):
+    """Measured points as open circles; those below the axes' bottom drawn on it as open triangles.
+
+    A test carrier that reads below the figure's range is a real measurement of a lower level (the
+    single-signal measurement reaches about −160 dB), not a point at the floor: it gets its own marker and
+    legend entry ("below −140 dB, drawn on the floor"). Call after the y limits are set.
+    """
+    bottom = ax.get_ylim()[0]
+    x = np.asarray(x_khz, dtype=float)
+    y = np.asarray(y_db, dtype=float)
+    below = ~(y > bottom)  # -inf (no carrier found) is below too
+    ax.plot(x[~below], y[~below], ls="none", marker="o", ms=4.5, mfc="none", color=OKABE_ITO["vermillion"],
+            label=label)
+    if below.any():
+        ax.plot(x[below], np.full(int(below.sum()), bottom), ls="none", marker="v", ms=6, mfc="none",
+                mew=1.3, color=OKABE_ITO["vermillion"], clip_on=False,
+                label=f"measured below {bottom:g} dB (drawn on the floor)")
 
 
 def _channel_grid(ax, spacing_khz, span_khz):
@@ -119,11 +187,11 @@ def selectivity_png(designed, measured, spacing_hz, rejections, *, title="", flo
     sk = spacing_hz / 1e3
     _channel_grid(ax, sk, span / 1e3)
     ax.plot(d[sel, 0] / 1e3, np.maximum(d[sel, 1], floor_db), color=OKABE_ITO["blue"], lw=1.8, label="designed")
+    ax.set_ylim(floor_db, 8)
     if measured is not None and len(measured):
         m = np.asarray(measured, dtype=float).reshape(-1, 2)
         ms = np.abs(m[:, 0]) <= span * 1.0001
-        ax.plot(m[ms, 0] / 1e3, np.maximum(m[ms, 1], floor_db), ls="none", marker="o", ms=4.5, mfc="none",
-                color=OKABE_ITO["vermillion"], label="measured (test carriers, AGC held)")
+        _measured_points(ax, m[ms, 0] / 1e3, m[ms, 1], "measured (test carriers, AGC held)")
     for key, rej in sorted(rejections.items(), key=lambda kv: float(kv[0])):
         x = float(key) / 1e3
         if rej is None:
@@ -138,7 +206,6 @@ def selectivity_png(designed, measured, spacing_hz, rejections, *, title="", flo
                     bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.85})
     ax.plot([], [], marker="v", ls="none", color=OKABE_ITO["green"], label="±1, ±2 channels (designed)")
     ax.set_xlim(-span / 1e3, span / 1e3)
-    ax.set_ylim(floor_db, 8)
     ax.set_xlabel(f"offset from tuned carrier, kHz (channel grid every {sk:g} kHz)")
     ax.set_ylabel("response relative to tuned carrier, dB")
     ax.set_title(title or "Overall selectivity referred to RF")
@@ -175,7 +242,12 @@ def stages_png(offsets_hz, curves, overall_db, spacing_hz, *, title="", floor_db
 
 def image_png(designed, measured, image_offset_hz, spacing_hz, image_rejection_db, *, title="",
               floor_db=-140.0) -> bytes:
-    """The image region: designed line and measured points around ``image_offset_hz``."""
+    """The image region: designed line and measured points around ``image_offset_hz``.
+
+    ``designed`` should be a fine grid (the report gives 200 points per channel spacing): the response of an
+    elliptic stage has notches that a coarse one draws as a polygon. Measured points below the figure's
+    range are marked as such (:func:`_measured_points`).
+    """
     fig, ctx = _figure()
     ax = fig.add_subplot(1, 1, 1)
     d = np.asarray(designed, dtype=float).reshape(-1, 2)
@@ -184,11 +256,6 @@ def image_png(designed, measured, image_offset_hz, spacing_hz, image_rejection_d
     rel = (d[sel, 0] - image_offset_hz) / 1e3
     _channel_grid(ax, spacing_hz / 1e3, 3 * spacing_hz / 1e3)
     ax.plot(rel, np.maximum(d[sel, 1], floor_db), color=OKABE_ITO["blue"], lw=1.8, label="designed")
-    if measured is not None and len(measured):
-        m = np.asarray(measured, dtype=float).reshape(-1, 2)
-        ms = np.abs(m[:, 0] - image_offset_hz) <= span
-        ax.plot((m[ms, 0] - image_offset_hz) / 1e3, np.maximum(m[ms, 1], floor_db), ls="none", marker="o",
-                ms=4.5, mfc="none", color=OKABE_ITO["vermillion"], label="measured")
     if image_rejection_db is None:
         # no image response at all (an ideal quadrature mixer): infinite rejection, nothing to draw
         ax.plot([], [], color=OKABE_ITO["green"], ls="--", lw=1, label="image rejection infinite (no image response)")
@@ -202,6 +269,10 @@ def image_png(designed, measured, image_offset_hz, spacing_hz, image_rejection_d
     finite = finite[np.isfinite(finite)]
     lo = min((float(finite.min()) if finite.size else floor_db) - 10, level - 20)
     ax.set_ylim(max(lo, floor_db), max(level + 30, 5))
+    if measured is not None and len(measured):
+        m = np.asarray(measured, dtype=float).reshape(-1, 2)
+        ms = np.abs(m[:, 0] - image_offset_hz) <= span
+        _measured_points(ax, (m[ms, 0] - image_offset_hz) / 1e3, m[ms, 1], "measured")
     ax.set_xlabel(f"offset from the image frequency ({image_offset_hz / 1e3:+g} kHz from the tune), kHz")
     ax.set_ylabel("response relative to tuned carrier, dB")
     ax.set_title(title or "Image region")
@@ -229,7 +300,7 @@ def group_delay_png(offsets_hz, delay_s, edges_hz=None, *, title="") -> bytes:
 
 
 def spectrum_png(freqs_hz, level_dbfs, tune_hz, passband_hz, image_hz, carriers, *, image_freqs_hz=None,
-                 image_level_dbfs=None, title="") -> bytes:
+                 image_level_dbfs=None, title="", rbw_hz, bin_hz) -> bytes:
     """Capture spectrum around the tuning with the passband and the image drawn on it.
 
     Parameters
@@ -244,7 +315,14 @@ def spectrum_png(freqs_hz, level_dbfs, tune_hz, passband_hz, image_hz, carriers,
         Surveyed carriers to mark.
     image_freqs_hz, image_level_dbfs : array_like, optional
         Spectrum around the image, when the capture holds it (second panel).
+    rbw_hz, bin_hz : float
+        Resolution (equivalent noise) bandwidth and bin spacing of the
+        spectrum: stated under each panel; the level is dBFS per RBW.
     """
+    from .text import frequency_text
+
+    rbw = (f"RBW {frequency_text(rbw_hz, 0.1)}: noise bandwidth of the Hann window, bins {frequency_text(bin_hz, 0.1)}"
+           "\na carrier reads its amplitude, noise its power within the RBW")
     fig, ctx = _figure()
     two = image_freqs_hz is not None and len(image_freqs_hz) > 0
     ax = fig.add_subplot(1, 2 if two else 1, 1)
@@ -258,7 +336,7 @@ def spectrum_png(freqs_hz, level_dbfs, tune_hz, passband_hz, image_hz, carriers,
             ax.plot([fc / 1e3], [lv], marker="v", color=OKABE_ITO["vermillion"], ls="none", ms=6)
     ax.plot([], [], marker="v", color=OKABE_ITO["vermillion"], ls="none", label="carriers found")
     ax.set_xlabel("frequency, kHz")
-    ax.set_ylabel("level, dBFS (carrier amplitude)")
+    ax.set_ylabel("level, dBFS per RBW")
     ax.set_title("around the tuning")
     ax.legend(loc="lower left", fontsize=7)
     if two:
@@ -275,6 +353,7 @@ def spectrum_png(freqs_hz, level_dbfs, tune_hz, passband_hz, image_hz, carriers,
     else:
         ax.annotate(f"image at {image_hz / 1e3:g} kHz (outside the capture)", (0.98, 0.95),
                     xycoords="axes fraction", ha="right", va="top", fontsize=8, color=OKABE_ITO["vermillion"])
+    fig.supxlabel(rbw, fontsize=9)
     if title:
         fig.suptitle(title)
     return _png(fig, ctx)
