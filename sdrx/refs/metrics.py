@@ -113,6 +113,10 @@ def octave_bands(fs: float) -> list:
     return out
 
 
+_PLOT_FLOOR_DB = -160.0   # lowest level a spectrum plot draws
+_PLOT_RANGE_DB = 140.0    # a spectrum plot spans at most this under its highest level
+
+
 def _segment_length(fs: float) -> int:
     return int(2 ** math.ceil(math.log2(max(fs / 8.0, 16.0))))
 
@@ -599,7 +603,7 @@ def write_difference(ref_path, new_path, out_path, outputs=None) -> Path:
 
 
 def plot_spectra(comparison: Comparison, out_path, title: str, outputs=None) -> Path:
-    """A small PNG of the reference, new and difference spectra and the octave-band changes.
+    """A PNG of the reference, new and difference spectra and, below, the octave-band changes.
 
     Parameters
     ----------
@@ -615,6 +619,14 @@ def plot_spectra(comparison: Comparison, out_path, title: str, outputs=None) -> 
     Returns
     -------
     Path
+
+    Notes
+    -----
+    Levels are the power per bin of :class:`SpectrumAccumulator` in dBFS (a
+    full-scale sine reads 0 dB); the bin width fs/N and the Hann window's
+    noise bandwidth, 1.5 bins (Harris 1978, table 1), are stated on the axis.
+    Levels more than 140 dB under the highest (and empty bins) are drawn on a
+    marked floor.
     """
     import matplotlib
 
@@ -622,26 +634,73 @@ def plot_spectra(comparison: Comparison, out_path, title: str, outputs=None) -> 
     from matplotlib.figure import Figure
 
     out = Path(out_path)
-    fig = Figure(figsize=(6.4, 3.6), dpi=80)
-    ax = fig.add_subplot(1, 1, 1)
-    curves = [(comparison.spectrum_ref, "reference", "-"), (comparison.spectrum_new, "new", "--"),
-              (comparison.spectrum_diff, "new - reference", ":")]
-    for spectrum, label, style in curves:
+    fig = Figure(figsize=(9.0, 6.4), dpi=100)
+    ax, bands = fig.subplots(2, 1, gridspec_kw={"height_ratios": [3, 1]})
+    _plot_spectrum_curves(ax, comparison)
+    _plot_band_changes(bands, comparison)
+    fig.suptitle(title, fontsize=12)
+    fig.tight_layout()
+    with member_path(out, outputs) as tmp:
+        fig.savefig(tmp, format="png", metadata={"Software": None})
+    return out
+
+
+def _spectrum_levels(comparison: Comparison) -> list:
+    """(label, style, freqs, level dBFS) of each spectrum present, 0 Hz left out."""
+    curves = []
+    for spectrum, label, style in ((comparison.spectrum_ref, "reference", "-"),
+                                   (comparison.spectrum_new, "new", "--"),
+                                   (comparison.spectrum_diff, "new - reference", ":")):
         if spectrum is None:
             continue
         f, p = spectrum
         sel = f > 0
         with np.errstate(divide="ignore"):
-            level = np.maximum(10.0 * np.log10(np.maximum(p[sel] * 2.0, 1e-30)), -160.0)
-        ax.semilogx(f[sel], level, style, linewidth=1.0, label=label)
-    for fc, d in zip(comparison.band_centres_hz, comparison.band_diff_db):
-        ax.annotate(f"{d:+.2f}", (fc, 0.02), xycoords=("data", "axes fraction"), ha="center", fontsize=7)
-    ax.set_xlabel("frequency (Hz); octave-band change new - reference in dB along the bottom")
-    ax.set_ylabel("level per bin (dBFS)")
-    ax.set_title(title, fontsize=9)
+            curves.append((label, style, f[sel], 10.0 * np.log10(p[sel] * 2.0)))
+    return curves
+
+
+def _plot_spectrum_curves(ax, comparison: Comparison) -> None:
+    """The spectra on a log frequency axis with the unit, the bin width and a marked floor."""
+    curves = _spectrum_levels(comparison)
+    finite = [lv[np.isfinite(lv)] for *_, lv in curves]
+    top = max((float(np.max(v)) for v in finite if v.size), default=0.0)
+    top = 10.0 * math.ceil(top / 10.0)
+    floor = max(_PLOT_FLOOR_DB, top - _PLOT_RANGE_DB)
+    bin_hz = None
+    for label, style, f, level in curves:
+        ax.semilogx(f, np.maximum(np.nan_to_num(level, neginf=floor), floor), style, linewidth=1.2, label=label)
+        bin_hz = float(f[1] - f[0]) if f.size > 1 else bin_hz
+    ax.axhline(floor, color="0.4", linewidth=0.8)
+    ax.text(0.99, floor, "floor of the plot: lower levels drawn on it", transform=ax.get_yaxis_transform(),
+            ha="right", va="bottom", fontsize=9, color="0.3")
+    ax.set_ylim(floor - 5.0, top + 5.0)
+    unit = "" if bin_hz is None else f" per {bin_hz:.3g} Hz bin"
+    ax.set_ylabel(f"power{unit}, dBFS\n(a full-scale sine reads 0 dB)", fontsize=10)
+    if bin_hz is not None:
+        ax.text(0.01, 0.98, f"resolution: {bin_hz:.3g} Hz bins, Hann window\n(noise bandwidth {1.5 * bin_hz:.3g} Hz)",
+                transform=ax.transAxes, ha="left", va="top", fontsize=9, color="0.3")
+    ax.set_xlabel("frequency, Hz", fontsize=10)
+    ax.tick_params(labelsize=9)
     ax.grid(True, which="both", alpha=0.3)
-    ax.legend(fontsize=8)
-    fig.tight_layout()
-    with member_path(out, outputs) as tmp:
-        fig.savefig(tmp, format="png", metadata={"Software": None})
-    return out
+    ax.legend(fontsize=10, loc="upper right")
+
+
+def _plot_band_changes(ax, comparison: Comparison) -> None:
+    """The octave-band level change new - reference as labelled bars."""
+    centres = list(comparison.band_centres_hz)
+    diffs = [float(d) for d in comparison.band_diff_db]
+    x = np.arange(len(centres))
+    ax.bar(x, diffs, color="0.55")
+    ax.axhline(0.0, color="0.2", linewidth=0.8)
+    for i, d in zip(x, diffs):
+        ax.annotate(f"{d:+.2f}", (i, d), ha="center", va="bottom" if d >= 0 else "top", fontsize=9)
+    ax.set_xticks(x, [f"{c:g}" if c < 1000 else f"{c / 1e3:g}k" for c in centres])
+    ax.set_xlabel("octave band centre, Hz", fontsize=10)
+    ax.set_ylabel("change new - ref\ndB", fontsize=10)
+    ax.tick_params(labelsize=9)
+    lo = min([0.0] + diffs)
+    hi = max([0.0] + diffs)
+    pad = 0.25 * (hi - lo) or 1.0
+    ax.set_ylim(lo - pad, hi + pad)
+    ax.grid(True, axis="y", alpha=0.3)
