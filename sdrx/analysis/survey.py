@@ -243,6 +243,25 @@ def band_statistics(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, pr
     info = reader.info
     spacing = _check_spacing(info, spacing_hz)
     first, count = reader.sample_range(start_s, duration_s)
+    nfft = _survey_nfft(info, spacing, count)
+    acc = _SpectralSums(nfft, info.kind == "iq")
+    used = (count // nfft) * nfft
+    done = 0
+    per_block = max(1, min(_SEGMENTS_PER_BLOCK, _BLOCK_SAMPLES // nfft))   # blocks of at most 4 Mi samples
+    for block in reader.blocks(nfft * per_block, start_s=start_s, duration_s=duration_s):
+        take = max(0, min(block.shape[0], used - done))
+        if take // nfft > 0:
+            acc.add(block[: (take // nfft) * nfft])
+        done += block.shape[0]
+        if progress is not None:
+            progress(min(done, count), count)
+        # the rest of the excerpt (less than a segment is unused) is still read, so that a reader
+        # that checks the file's hash on a whole read (SigMF core:sha512) sees every byte
+    return acc.statistics(info, first, used)
+
+
+def _survey_nfft(info, spacing: float, count: int) -> int:
+    """The segment length for the spacing, checked against the limit and the excerpt's length."""
     nfft = _choose_nfft(info.fs, spacing, count)
     if nfft > MAX_SURVEY_BINS:
         raise ParameterError(
@@ -253,60 +272,62 @@ def band_statistics(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, pr
             f"{info.path}: excerpt of {count} samples is too short to survey {spacing:g} Hz channels "
             f"(needs at least {nfft})"
         )
-    is_iq = info.kind == "iq"
-    window = np.hanning(nfft + 1)[:-1].astype(np.float32)  # periodic Hann
-    norm = (1.0 if is_iq else 4.0) / (nfft * float(np.sum(window.astype(np.float64) ** 2)))
-    used = (count // nfft) * nfft
-    nbin = nfft if is_iq else nfft // 2 + 1
-    acc = np.zeros(nbin, dtype=np.float64)
-    acc_mean = np.zeros(nbin, dtype=np.complex128)
-    acc_lag = np.zeros(nbin, dtype=np.complex128)
-    acc_comp = np.zeros(nbin, dtype=np.complex128) if is_iq else None
-    mirror = (-np.arange(nfft)) % nfft
-    total = 0.0 + 0.0j
-    prev = None
-    segments = 0
-    done = 0
-    per_block = max(1, min(_SEGMENTS_PER_BLOCK, _BLOCK_SAMPLES // nfft))   # blocks of at most 4 Mi samples
-    for block in reader.blocks(nfft * per_block, start_s=start_s, duration_s=duration_s):
-        take = max(0, min(block.shape[0], used - done))
-        k = take // nfft
-        if k > 0:
-            part = block[: k * nfft]
-            total += complex(np.sum(part, dtype=np.complex128 if is_iq else np.float64))
-            seg = part.reshape(k, nfft) * window
-            spec = np.fft.fft(seg, axis=1) if is_iq else np.fft.rfft(seg, axis=1)
-            acc += np.sum(spec.real.astype(np.float64) ** 2 + spec.imag.astype(np.float64) ** 2, axis=0)
-            acc_mean += np.sum(spec, axis=0, dtype=np.complex128)
-            chain = spec if prev is None else np.concatenate([prev[None, :], spec])
-            acc_lag += np.sum(chain[1:] * np.conj(chain[:-1]), axis=0, dtype=np.complex128)
-            prev = spec[-1]
-            if acc_comp is not None:
-                acc_comp += np.sum(spec * spec[:, mirror], axis=0, dtype=np.complex128)
-            segments += k
-        done += block.shape[0]
-        if progress is not None:
-            progress(min(done, count), count)
-        # the rest of the excerpt (less than a segment is unused) is still read, so that a reader
-        # that checks the file's hash on a whole read (SigMF core:sha512) sees every byte
-    scale = norm / segments
+    return nfft
 
-    def arrange(a):
-        return np.fft.fftshift(a) if is_iq else a
 
-    if is_iq:
-        freqs = info.center_hz + (np.arange(nfft) - nfft // 2) * (info.fs / nfft)
-    else:
-        freqs = np.arange(nbin) * (info.fs / nfft)
-    dc = total / used
-    return BandStatistics(
-        kind=info.kind, fs=float(info.fs), center_hz=info.center_hz, nfft=nfft, segments=segments,
-        first=first, samples=used, freqs=freqs, power=arrange(acc * scale),
-        mean=arrange(acc_mean * (math.sqrt(norm) / segments)),
-        lag1=arrange(acc_lag * (norm / max(1, segments - 1))),
-        complementary=None if acc_comp is None else arrange(acc_comp * scale),
-        dc=dc if is_iq else dc.real,
-    )
+class _SpectralSums:
+    """Running sums over Hann segments of ``nfft`` samples: power, mean, lag-one and complementary spectra."""
+
+    def __init__(self, nfft: int, is_iq: bool):
+        self.nfft, self.is_iq = nfft, is_iq
+        self.window = np.hanning(nfft + 1)[:-1].astype(np.float32)  # periodic Hann
+        nbin = nfft if is_iq else nfft // 2 + 1
+        self.power = np.zeros(nbin, dtype=np.float64)
+        self.mean = np.zeros(nbin, dtype=np.complex128)
+        self.lag = np.zeros(nbin, dtype=np.complex128)
+        self.comp = np.zeros(nbin, dtype=np.complex128) if is_iq else None
+        self.mirror = (-np.arange(nfft)) % nfft
+        self.total = 0.0 + 0.0j
+        self.prev = None
+        self.segments = 0
+
+    def add(self, part) -> None:
+        """Add whole segments (``part`` holds a multiple of ``nfft`` samples)."""
+        k = part.shape[0] // self.nfft
+        self.total += complex(np.sum(part, dtype=np.complex128 if self.is_iq else np.float64))
+        seg = part.reshape(k, self.nfft) * self.window
+        spec = np.fft.fft(seg, axis=1) if self.is_iq else np.fft.rfft(seg, axis=1)
+        self.power += np.sum(spec.real.astype(np.float64) ** 2 + spec.imag.astype(np.float64) ** 2, axis=0)
+        self.mean += np.sum(spec, axis=0, dtype=np.complex128)
+        chain = spec if self.prev is None else np.concatenate([self.prev[None, :], spec])
+        self.lag += np.sum(chain[1:] * np.conj(chain[:-1]), axis=0, dtype=np.complex128)
+        self.prev = spec[-1]
+        if self.comp is not None:
+            self.comp += np.sum(spec * spec[:, self.mirror], axis=0, dtype=np.complex128)
+        self.segments += k
+
+    def statistics(self, info, first: int, used: int) -> BandStatistics:
+        """The averages, calibrated (see :func:`survey`, Notes) and in ascending frequency."""
+        nfft, is_iq, segments = self.nfft, self.is_iq, self.segments
+        norm = (1.0 if is_iq else 4.0) / (nfft * float(np.sum(self.window.astype(np.float64) ** 2)))
+        scale = norm / segments
+
+        def arrange(a):
+            return np.fft.fftshift(a) if is_iq else a
+
+        if is_iq:
+            freqs = info.center_hz + (np.arange(nfft) - nfft // 2) * (info.fs / nfft)
+        else:
+            freqs = np.arange(self.power.size) * (info.fs / nfft)
+        dc = self.total / used
+        return BandStatistics(
+            kind=info.kind, fs=float(info.fs), center_hz=info.center_hz, nfft=nfft, segments=segments,
+            first=first, samples=used, freqs=freqs, power=arrange(self.power * scale),
+            mean=arrange(self.mean * (math.sqrt(norm) / segments)),
+            lag1=arrange(self.lag * (norm / max(1, segments - 1))),
+            complementary=None if self.comp is None else arrange(self.comp * scale),
+            dc=dc if is_iq else dc.real,
+        )
 
 
 def survey(reader, *, spacing_hz=10e3, start_s=0.0, duration_s=None, threshold_db=DEFAULT_THRESHOLD_DB,
