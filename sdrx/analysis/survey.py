@@ -508,6 +508,8 @@ def line_offset(power, k: int, noise: float, segments: int) -> tuple:
     """
     side = 1 if power[k + 1] >= power[k - 1] else -1
     q0 = float(power[k]) - noise
+    if not q0 > 0:
+        return 0.0, math.nan        # no line above the noise: no offset to tell
     q1 = max(float(power[k + side]) - noise, q0 * 1e-12)
     a = math.sqrt(q1 / q0)
     delta = side * (2.0 * a - 1.0) / (a + 1.0)
@@ -584,7 +586,7 @@ def _strong_lines(band: BandStatistics, found: Survey) -> np.ndarray:
     half = max(_GUARD, int(found.spacing_hz / 2.0 / rbw))
     peak = np.lib.stride_tricks.sliding_window_view(np.pad(power, half, constant_values=-np.inf), 2 * half + 1)
     strongest = power >= np.max(peak, axis=1)
-    idx = np.flatnonzero(strongest & (power >= noise * 10.0 ** (found.threshold_db / 10.0)))
+    idx = np.flatnonzero(strongest & (power >= noise * 10.0 ** (found.threshold_db / 10.0)) & (power > noise))
     idx = idx[(idx >= 1) & (idx <= power.size - 2)]
     deltas = [line_offset(power, int(k), noise, band.segments)[0] for k in idx]
     return np.array([band.freqs[k] + d * rbw for k, d in zip(idx, deltas)], dtype=float)
