@@ -61,6 +61,32 @@ def test_table(band, capsys):
     assert [ln[0] for ln in lines] == ["1130", "700", "1140"]
 
 
+def test_offsets_to_their_resolution_and_the_off_grid_hint(band, capsys):
+    # the carriers sit exactly on their channels: each printed offset is 0 to the digits its resolution
+    # supports, and that resolution is stated beside it (Grandke interpolation, sdrx.analysis.survey)
+    rc, out, err = run(["info", str(band), "--quiet"], capsys)
+    assert rc == 0, err
+    assert "offset Hz from the channel (interpolated; +- its resolution)" in out
+    rows = {ln.split()[0]: ln.split() for ln in out.splitlines() if ln.strip().startswith(("1130", "700", "1140"))}
+    for f, row in rows.items():
+        offset, res = float(row[2]), float(row[3].lstrip("+-"))
+        assert abs(offset) <= res < 1.0
+    assert "hint:" not in out.split("front end")[0]
+    # the same 10 kHz band on the 9 kHz grid: 1130 (3 kHz from 1134) and 1140 (4 kHz from 1143) are not listed
+    # and 700 kHz (2 kHz from 702) is listed with its offset; the hint says all 3 lie off and 10 kHz fits them
+    rc, out, err = run(["info", str(band), "--quiet", "--spacing", "9k"], capsys)
+    assert rc == 0, err
+    assert ("  hint: 3 of 3 strong lines lie off the 9 kHz grid (more than 300 Hz from a channel); a 10 kHz grid "
+            "fits 3 of 3: --spacing 10k") in out
+    rc, out, err = run(["info", str(band), "--quiet", "--spacing", "9k", "--json"], capsys)
+    d = json.loads(out)
+    assert [c["freq_hz"] for c in d["carriers"]] == [702e3]
+    c = d["carriers"][0]
+    assert c["line_hz"] == pytest.approx(700e3, abs=c["offset_resolution_hz"])
+    assert d["grid_fit"] == {"lines": 3, "off_grid": 3, "tolerance_hz": 300.0, "fits": {"9000": 0, "10000": 3},
+                             "suggested_spacing_hz": 10000.0}
+
+
 def test_excerpt_options(band, capsys):
     rc, out, err = run(["info", str(band), "--json", "--start", "0.1", "--duration", "0.2"], capsys)
     assert rc == 0, err

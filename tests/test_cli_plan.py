@@ -61,3 +61,17 @@ def test_help_has_an_unwrapped_example(capsys):
     rc, out, err = run(["plan", "--help"], capsys)
     assert rc == 0
     assert "    sdrx plan --if 455k --band 540k:1700k --spacing 10k --reject 40 --at 10k\n" in out
+
+
+def test_capacitance_ratio_has_a_verdict(capsys):
+    # low-side LO over 540-1700 kHz: 85-1245 kHz, a 14.6:1 tuning range, 215:1 in capacitance (f = 1/(2 pi
+    # sqrt(LC)), physical identity): beyond any single variable capacitor; the RF section's 9.91:1 is usual
+    rc, out, err = run(["plan", "--if", "455k", "--band", "540k:1700k", "--injection", "low"], capsys)
+    assert rc == 0, err
+    ratio = (1245 / 85) ** 2
+    assert f"capacitance ratio {ratio:.3g} (= ratio squared): beyond any single variable capacitor" in out
+    assert f"RF section: tuning ratio {1700 / 540:.4g}, capacitance ratio {(1700 / 540) ** 2:.3g}: a usual" in out
+    rc, out, err = run(["plan", "--if", "455k", "--band", "540k:1700k", "--injection", "low", "--json"], capsys)
+    d = json.loads(out)
+    assert (d["lo_capacitance_verdict"], d["rf_capacitance_verdict"]) == ("beyond", "usual")
+    assert d["capacitance_verdict_source"] == "common practice"

@@ -185,3 +185,15 @@ def test_unreadable_wav(tmp_path):
     p.write_bytes(b"RIFF0000WAVEjunk")
     with pytest.raises(CaptureError, match="bad.wav: not a readable WAV"):
         audio_figures(p)
+
+
+def test_spectra_plot_readable_with_its_bin_width(tmp_path):
+    # identical audio: the difference spectrum is empty (drawn on the marked floor); the PNG is 900 x 640
+    import matplotlib.image as mpimg
+
+    x = tone(300, 5000)
+    r, w = wav(tmp_path / "r.wav", x), wav(tmp_path / "n.wav", x)
+    png = plot_spectra(compare_audio(r, w, Tolerance()), tmp_path / "s.png", "case y")
+    assert mpimg.imread(png).shape[:2] == (640, 900)
+    again = plot_spectra(compare_audio(r, w, Tolerance()), tmp_path / "t.png", "case y")
+    assert again.read_bytes() == png.read_bytes()

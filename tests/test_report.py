@@ -189,10 +189,11 @@ def capture(tmp_path):
 def test_capture_carriers_and_spectrum(capture, tmp_path):
     path, truth = capture
     rep = build_report("medium", TUNE, capture=path, measure=False)
-    cars = {c["freq_hz"]: c for c in rep.data["carriers"]}
+    cars = {c["channel_hz"]: c for c in rep.data["carriers"]}
     assert set(truth) <= set(cars)
     for f, a in truth.items():
         c = cars[f]
+        assert c["freq_hz"] == f     # on its channel: the interpolated line, to its resolution and 0.1 Hz
         # level convention (README, file formats): 20 log10 of the carrier amplitude (measured deviation 6e-4 dB
         # with the report's rounding to 0.001 dB; tolerance 0.01 dB)
         assert c["antenna_dbfs"] == pytest.approx(20 * np.log10(a), abs=0.01)
@@ -209,6 +210,32 @@ def test_capture_carriers_and_spectrum(capture, tmp_path):
     assert "spectrum.png" in rep.figures
     write_report(rep, tmp_path / "r")
     _check_html_against_json(tmp_path / "r")
+
+
+def test_off_grid_carriers_placed_where_they_are(tmp_path):
+    # a 10 kHz band reported on the 9 kHz grid: the carriers at 1000.004 and 1010 kHz are found on the 9 kHz
+    # channels 999 and 1008 kHz, and listed at their own frequencies, their detector level computed there
+    fs, center = 250e3, 1000e3
+    t = np.arange(int(fs * 0.3)) / fs
+    truth = {1000.004e3: 0.3, 1010e3: 0.1}
+    x = sum(a * np.exp(2j * np.pi * (f - center) * t) for f, a in truth.items())
+    x = x + 1e-4 * (np.random.default_rng(8).standard_normal(t.size) + 0j)
+    path = tmp_path / "off.sigmf-meta"
+    with open_writer(path, fs=fs, kind="iq", datatype="cf32_le", center_hz=center) as w:
+        w.write(x.astype(np.complex64))
+    rep = build_report("medium", 999e3, spacing_hz=9e3, capture=path, measure=False)
+    cars = {c["channel_hz"]: c for c in rep.data["carriers"]}
+    assert sorted(cars) == [999e3, 1008e3]
+    for (ch, c), (f, a) in zip(sorted(cars.items()), sorted(truth.items())):
+        assert c["freq_hz"] == pytest.approx(f, abs=0.1)      # measured within 0.01 Hz (bins of 122 Hz)
+        assert c["offset_hz"] == pytest.approx(f - 999e3, abs=0.1)
+        response_db = float(preset_response_db("medium", 999e3, f))
+        assert c["selectivity_db"] == pytest.approx(response_db, abs=5e-4)
+        assert c["detector_dbfs"] == pytest.approx(20 * np.log10(a) + response_db, abs=0.015)
+    # at the 1 kHz offset the tuned carrier loses under 1 dB; the one at 11 kHz sits far down the skirt,
+    # where its channel (9 kHz off) would have read it much higher
+    assert cars[999e3]["tuned"] and cars[1008e3]["within_two_channels"]
+    assert float(preset_response_db("medium", 999e3, 1008e3)) > cars[1008e3]["selectivity_db"] + 3
 
 
 def test_tune_outside_capture(capture):

@@ -46,6 +46,9 @@ __all__ = [
     "spurious_responses",
     "q_requirements",
     "frequency_plan",
+    "capacitance_verdict",
+    "USUAL_CAPACITANCE_RATIO",
+    "MAX_CAPACITANCE_RATIO",
 ]
 
 #: Highest loaded Q taken as practical for LC tuned circuits at MF and at a
@@ -53,6 +56,14 @@ __all__ = [
 #: unloaded Q of roughly 100–300, and a circuit loaded by its source and load
 #: keeps perhaps half to two thirds of that. Not from a written source.
 PRACTICAL_LOADED_Q = 200.0
+
+#: Capacitance ratio a usual single-gang broadcast variable capacitor covers once the circuit's strays and
+#: trimmer are added (about 30-35 pF at the minimum against some 365-400 pF at the maximum): common practice,
+#: from memory; enough for the 3.2:1 tuning range (10.3:1 in capacitance) of a 530-1700 kHz band.
+USUAL_CAPACITANCE_RATIO = 12.0
+#: The bare swing of such a capacitor with no strays (about 10-365 pF): common practice, from memory. Beyond
+#: it no single variable capacitor tunes the section; the band is split or tuned otherwise.
+MAX_CAPACITANCE_RATIO = 36.0
 
 #: Highest --max-q and --reject taken (beyond any tuned circuit; beyond any measurement).
 MAX_PRACTICAL_Q = 1e5
@@ -164,6 +175,25 @@ class QTable:
 _WHERE = {"if": "IF", "band_bottom": "band bottom", "band_top": "band top"}
 
 
+def capacitance_verdict(ratio: float) -> tuple:
+    """(key, one line) of whether a single variable capacitor tunes a section of this capacitance ratio.
+
+    ``usual``: within :data:`USUAL_CAPACITANCE_RATIO`; ``tight``: within the
+    bare swing :data:`MAX_CAPACITANCE_RATIO` only with a low-stray circuit;
+    ``beyond``: more than any single variable capacitor swings (common practice).
+
+    >>> capacitance_verdict(4.79)[0], capacitance_verdict(20.0)[0], capacitance_verdict(276.0)[0]
+    ('usual', 'tight', 'beyond')
+    """
+    if ratio <= USUAL_CAPACITANCE_RATIO:
+        return "usual", f"a usual single-gang variable capacitor covers it (about {USUAL_CAPACITANCE_RATIO:g}:1 with strays; common practice)"
+    if ratio <= MAX_CAPACITANCE_RATIO:
+        return "tight", (f"beyond the usual {USUAL_CAPACITANCE_RATIO:g}:1 with strays: only a low-stray circuit "
+                         f"(a bare gang swings about {MAX_CAPACITANCE_RATIO:g}:1; common practice)")
+    return "beyond", (f"beyond any single variable capacitor (about {MAX_CAPACITANCE_RATIO:g}:1 at most; common practice): "
+                      "split the band or tune the section otherwise")
+
+
 @dataclass(frozen=True)
 class FrequencyPlan:
     """LO, image and spur plan of one IF over one band (see :func:`frequency_plan`)."""
@@ -219,6 +249,9 @@ class FrequencyPlan:
             "lo_capacitance_ratio": round(self.lo_capacitance_ratio, 5),
             "rf_tuning_ratio": round(self.rf_tuning_ratio, 5),
             "rf_capacitance_ratio": round(self.rf_capacitance_ratio, 5),
+            "lo_capacitance_verdict": capacitance_verdict(self.lo_capacitance_ratio)[0],
+            "rf_capacitance_verdict": capacitance_verdict(self.rf_capacitance_ratio)[0],
+            "capacitance_verdict_source": "common practice",
             "spur_relation": "m*lo_hz + n*rf_hz = if_hz, |m| <= 3, 1 <= |n| <= 3",
             "channels": [c.to_json() for c in self.channels],
             "q_required": None if self.q_required is None else self.q_required.to_json(),

@@ -514,3 +514,36 @@ def measured_figures(design, tune_hz, spacing_hz, designed, *, path="fast", poin
     im = -at(design.image_hz(tune_hz) - tune_hz)
     resp = tuple((float(o), float(v)) for o, v in zip(offs, rel))
     return Figures(f"measured ({path} path)", widths, edges, sf, adj, im, resp)
+
+
+def if_widths(design, levels_db=(3.0, 6.0)) -> dict:
+    """Overall widths of the whole IF chain at each level below its response at the IF, Hz.
+
+    Parameters
+    ----------
+    design : ChainDesign
+    levels_db : sequence of float
+        Positive dB below the response at the IF frequency.
+
+    Returns
+    -------
+    dict
+        ``{level_db: width_hz}`` from the product of every IF stage's analog
+        response (:meth:`ChainDesign.if_response`), not a stage's nominal
+        bandwidth; None where a side does not fall that far within ±IF/2.
+
+    Examples
+    --------
+    >>> from sdrx.chain import design_chain
+    >>> w = if_widths(design_chain("medium"))
+    >>> 5e3 < w[3.0] < w[6.0] < 9e3
+    True
+    """
+    f0 = design.if_hz
+    ref = abs(design.if_response(np.array([f0]))[0])
+    resp = lambda off: db20(np.abs(design.if_response(f0 + np.asarray(off, dtype=float))) / ref)
+    out = {}
+    for level in levels_db:
+        lo, hi = band_edges(resp, float(level), f0 / 2.0, 25.0)
+        out[float(level)] = None if lo is None or hi is None else hi - lo
+    return out

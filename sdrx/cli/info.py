@@ -7,7 +7,8 @@ import math
 
 import click
 
-from ..analysis.survey import DEFAULT_SURVEY_SECONDS, DEFAULT_THRESHOLD_DB, band_statistics, survey_statistics
+from ..analysis.survey import (DEFAULT_SURVEY_SECONDS, DEFAULT_THRESHOLD_DB, band_statistics, grid_fit,
+                               resolution_decimals, survey_statistics)
 from ..capture import open_capture
 from ..capture.impairments import CARRIER_TOLERANCE_HZ, estimate_from_statistics
 from ..units import format_frequency
@@ -65,7 +66,17 @@ def format_impairments(imp) -> list:
     return lines
 
 
-def format_info(info, result, first: int, count: int, impairments=None) -> str:
+def _offset_text(c) -> str:
+    """'+2003.7 +-0.4': the offset to the digits its resolution supports, and that resolution."""
+    res = c.offset_resolution_hz
+    if not math.isfinite(res):
+        return f"{c.offset_hz:+.0f}"
+    d = resolution_decimals(res)
+    value = f"{round(c.offset_hz, d) + 0.0:+.{max(d, 0)}f}"
+    return f"{value} +-{res:.1g}"
+
+
+def format_info(info, result, first: int, count: int, impairments=None, fit=None) -> str:
     """The compact terminal table of ``sdrx info``."""
     lines = []
     name = str(info.path) if info.path == info.data_path else f"{info.path} (data {info.data_path.name})"
@@ -87,10 +98,13 @@ def format_info(info, result, first: int, count: int, impairments=None) -> str:
     n = len(result.carriers)
     lines.append(f"carriers  {n} on the {_k(result.spacing_hz)} kHz grid" + (", strongest first:" if n else ""))
     if n:
-        lines.append(f"  {'kHz':>9} {'dBFS':>7} {'offset Hz':>10}")
+        lines.append(f"  {'kHz':>9} {'dBFS':>7}  offset Hz from the channel (interpolated; +- its resolution)")
         for c in result.carriers:
             note = _carrier_note(info, c, result.carriers, impairments)
-            lines.append(f"  {_k(c.freq_hz):>9} {c.level_dbfs:>7.1f} {round(c.offset_hz) + 0:>10d}" + note)
+            lines.append(f"  {_k(c.freq_hz):>9} {c.level_dbfs:>7.1f}  {_offset_text(c):<16}" + note)
+    hint = None if fit is None else fit.hint()
+    if hint is not None:
+        lines.append(f"  hint: {hint}")
     if impairments is not None:
         lines.extend(format_impairments(impairments))
     return "\n".join(lines)
@@ -143,6 +157,7 @@ def command(capture, datatype, rate, center, start, duration, spacing, as_json, 
             bar.close()
     result = survey_statistics(band, band_spacing(spacing), DEFAULT_THRESHOLD_DB)
     impairments = estimate_from_statistics(band, result)
+    fit = grid_fit(band, result)
     if png_path is not None:
         _write_spectrogram(reader, png_path, result, start, duration, quiet)
     if as_json:
@@ -150,10 +165,11 @@ def command(capture, datatype, rate, center, start, duration, spacing, as_json, 
         data["start_s"] = first / info.fs
         data["duration_s"] = count / info.fs
         data.update(result.to_json())
+        data["grid_fit"] = fit.to_json()
         data["impairments"] = impairments.to_json()
         click.echo(json.dumps(data, indent=1, allow_nan=False))
     else:
-        click.echo(format_info(info, result, first, count, impairments))
+        click.echo(format_info(info, result, first, count, impairments, fit))
         if capped:
             click.echo(f"          (the first {DEFAULT_SURVEY_SECONDS:g} s of the excerpt by default; --duration S "
                        "surveys more)")

@@ -6,7 +6,7 @@ import json
 
 import click
 
-from ..analysis.plan import PRACTICAL_LOADED_Q, frequency_plan
+from ..analysis.plan import PRACTICAL_LOADED_Q, capacitance_verdict, frequency_plan
 from ..errors import ParameterError
 from .common import SdrxCommand
 
@@ -49,9 +49,11 @@ def format_plan(plan) -> str:
                  f"{len(plan.channels)} channels every {_k(plan.spacing_hz)} kHz")
     l0, l1 = plan.lo_range_hz
     i0, i1 = plan.image_range_hz
-    lines.append(f"LO range {_k(l0)}-{_k(l1)} kHz: tuning ratio {plan.lo_tuning_ratio:.4f}, "
-                 f"capacitance ratio {plan.lo_capacitance_ratio:.3f} (= ratio squared)")
-    lines.append(f"RF section: tuning ratio {plan.rf_tuning_ratio:.4f}, capacitance ratio {plan.rf_capacitance_ratio:.3f}")
+    lines.append(f"LO range {_k(l0)}-{_k(l1)} kHz: tuning ratio {plan.lo_tuning_ratio:.4g}, "
+                 f"capacitance ratio {plan.lo_capacitance_ratio:.3g} (= ratio squared): "
+                 f"{capacitance_verdict(plan.lo_capacitance_ratio)[1]}")
+    lines.append(f"RF section: tuning ratio {plan.rf_tuning_ratio:.4g}, capacitance ratio {plan.rf_capacitance_ratio:.3g}: "
+                 f"{capacitance_verdict(plan.rf_capacitance_ratio)[1]}")
     lines.append(f"image range {_k(i0)}-{_k(i1)} kHz; "
                  f"{sum(c.image_channel_hz is not None for c in plan.channels)} channels have their image inside the band")
     lines.append("")
@@ -74,8 +76,8 @@ def format_comparison(plans) -> str:
     rows = [
         ("IF, kHz", lambda p: _k(p.if_hz)),
         ("LO range, kHz", lambda p: f"{_k(p.lo_range_hz[0])}-{_k(p.lo_range_hz[1])}"),
-        ("LO tuning ratio", lambda p: f"{p.lo_tuning_ratio:.4f}"),
-        ("LO capacitance ratio", lambda p: f"{p.lo_capacitance_ratio:.3f}"),
+        ("LO tuning ratio", lambda p: f"{p.lo_tuning_ratio:.4g}"),
+        ("LO capacitance ratio", lambda p: f"{p.lo_capacitance_ratio:.3g} {capacitance_verdict(p.lo_capacitance_ratio)[0]}"),
         ("image range, kHz", lambda p: f"{_k(p.image_range_hz[0])}-{_k(p.image_range_hz[1])}"),
         ("images inside band", lambda p: str(sum(c.image_channel_hz is not None for c in p.channels))),
         ("half-IF spur in band", lambda p: str(sum(p.band_hz[0] <= c.half_if_spur_hz <= p.band_hz[1]

@@ -12,10 +12,34 @@ __all__ = ["command"]
 def _list_chains(ctx, _param, value):
     if not value or ctx.resilient_parsing:
         return
-    from ..chain import list_presets
+    from ..analysis.selectivity import if_widths
+    from ..chain import design_chain, list_presets
+    from ..units import format_frequency
 
+    click.echo(f"{'preset':8s} {'IF -3 dB':>9s} {'IF -6 dB':>9s}  {'audio band':16s} description")
     for name, desc in list_presets():
-        click.echo(f"{name:8s} {desc}")
+        design = design_chain(name)
+        widths = if_widths(design)
+        w3, w6 = (("-" if widths[lv] is None else f"{widths[lv] / 1e3:.1f} kHz") for lv in (3.0, 6.0))
+        audio = design.audio
+        band = f"{format_frequency(audio.highpass_hz)}-{format_frequency(audio.lowpass_hz)}"
+        click.echo(f"{name:8s} {w3:>9s} {w6:>9s}  {band:16s} {desc}")
+    click.echo("IF -3/-6 dB: overall width of the whole IF chain (every stage together), from the design; "
+               "audio band: the audio filters' corners. --show-chain PRESET prints a preset's TOML.")
+    ctx.exit(0)
+
+
+def _show_chain(ctx, _param, value):
+    if value is None or ctx.resilient_parsing:
+        return
+    from ..chain.spec_toml import spec_to_toml
+    from ..errors import ParameterError
+
+    try:
+        text = spec_to_toml(value)
+    except ParameterError as exc:
+        raise ParameterError(str(exc).replace("--chain ", "--show-chain ", 1)) from None
+    click.echo(text, nl=False)
     ctx.exit(0)
 
 
@@ -36,7 +60,10 @@ def _list_chains(ctx, _param, value):
 @click.option("--force", is_flag=True, help="Replace existing outputs.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 @click.option("--list-chains", is_flag=True, expose_value=False, is_eager=True, callback=_list_chains,
-              help="List the shipped chain presets and exit.")
+              help="List the shipped chain presets (overall IF -3/-6 dB widths, audio band) and exit.")
+@click.option("--show-chain", metavar="PRESET", expose_value=False, is_eager=True, callback=_show_chain,
+              help="Print a preset's chain spec as TOML, every key written out, and exit: save it, edit it, "
+                   "pass it as --chain FILE.toml.")
 @click.option("--spacing", default="10k", show_default=True, metavar="HZ",
               help="Channel spacing (9k or 10k at MF): the adjacent channels of the checks, and the grid of "
                    "broadcast carriers that --correct clock estimates the clock error from.")

@@ -113,6 +113,10 @@ def octave_bands(fs: float) -> list:
     return out
 
 
+_PLOT_FLOOR_DB = -160.0   # lowest level a spectrum plot draws
+_PLOT_RANGE_DB = 140.0    # a spectrum plot spans at most this under its highest level
+
+
 def _segment_length(fs: float) -> int:
     return int(2 ** math.ceil(math.log2(max(fs / 8.0, 16.0))))
 
@@ -401,83 +405,112 @@ def compare_audio(ref_path, new_path, tolerance) -> Comparison:
     (40.0, 0.0864, False)
     """
     with _open(ref_path) as fr, _open(new_path) as fn:
-        fs_r, fs_n = float(fr.samplerate), float(fn.samplerate)
-        same_shape = fs_r == fs_n and fr.channels == fn.channels
         dtype = "float32" if tolerance.exact else "float64"
-        acc_r, acc_n = SpectrumAccumulator(fs_r), SpectrumAccumulator(fs_n)
-        acc_d = SpectrumAccumulator(fs_r)
-        s_rr = s_nn = s_ee = 0.0
-        n_r = n_n = 0
-        first_diff = None
-        gr, gn = _blocks(fr, dtype), _blocks(fn, dtype)
-        br = next(gr, None)
-        bn = next(gn, None)
-        # Walk both files in step; blocks are the same size except at the ends.
-        while br is not None or bn is not None:
-            if br is not None:
-                acc_r.add(br)
-                s_rr += float(np.sum(br.astype(float) ** 2))
-            if bn is not None:
-                acc_n.add(bn)
-                s_nn += float(np.sum(bn.astype(float) ** 2))
-            if br is not None and bn is not None and same_shape:
-                m = min(br.shape[0], bn.shape[0])
-                d = bn[:m].astype(float) - br[:m].astype(float)
-                s_ee += float(np.sum(d * d))
-                acc_d.add(d)
-                if first_diff is None:
-                    neq = np.nonzero(np.any(bn[:m] != br[:m], axis=1))[0]
-                    if neq.size:
-                        first_diff = n_r + int(neq[0])
-                # the unmatched tail of the longer block counts in full as error
-                s_ee += float(np.sum(br[m:].astype(float) ** 2)) + float(np.sum(bn[m:].astype(float) ** 2))
-            elif same_shape:
-                tail = br if br is not None else bn
-                s_ee += float(np.sum(tail.astype(float) ** 2))
-            n_r += 0 if br is None else br.shape[0]
-            n_n += 0 if bn is None else bn.shape[0]
-            br = next(gr, None)
-            bn = next(gn, None)
-        ch_r, ch_n = fr.channels, fn.channels
-    if first_diff is None and n_r != n_n:
-        first_diff = min(n_r, n_n)
-    problems = []
-    if fs_r != fs_n:
-        problems.append(f"audio rate {fs_n:g} Hz, reference {fs_r:g} Hz")
-    if ch_r != ch_n:
-        problems.append(f"{ch_n} channels, reference {ch_r}")
-    if n_r != n_n:
-        problems.append(f"length {n_n} samples, reference {n_r}")
-    identical = not problems and first_diff is None
-    snr = _ratio_db(s_rr, s_ee) if same_shape else -math.inf
-    if s_rr == 0 and s_nn == 0:
-        level = 0.0
-    elif s_rr == 0 or s_nn == 0:
-        level = math.inf if s_nn > 0 else -math.inf
-    else:
-        level = 10.0 * math.log10((s_nn / max(n_n, 1)) / (s_rr / max(n_r, 1)))
-    lr, ln = acc_r.band_levels_dbfs(), acc_n.band_levels_dbfs()
+        walk = _PairWalk(fr, fn)
+        walk.run(_blocks(fr, dtype), _blocks(fn, dtype))
+    problems = walk.shape_problems()
+    identical = not problems and walk.first_diff is None
+    snr = _ratio_db(walk.s_rr, walk.s_ee) if walk.same_shape else -math.inf
+    level = walk.level_change_db()
+    fs_r, fs_n = walk.fs_r, walk.fs_n
+    lr, ln = walk.acc_r.band_levels_dbfs(), walk.acc_n.band_levels_dbfs()
     centres = tuple(b[0] for b in octave_bands(fs_r))
     diffs = tuple(a - b for a, b in zip(ln, lr)) if fs_r == fs_n else ()
     spec = max((abs(v) for v in diffs), default=0.0) if fs_r == fs_n else math.inf
-    if tolerance.exact:
-        if not problems and not identical:
-            problems.append(f"samples differ from sample {first_diff}")
-    else:
-        if snr < tolerance.snr_db:
-            problems.append(f"SNR {fmt_db(snr, 1)} dB < {fmt_db(tolerance.snr_db, 1)} dB")
-        if not abs(level) <= tolerance.level_db:
-            problems.append(f"level change {fmt_db(level, 3, True)} dB exceeds {fmt_db(tolerance.level_db, 3)} dB")
-        if not spec <= tolerance.spectrum_db:
-            problems.append(f"spectral difference {fmt_db(spec, 2)} dB exceeds {fmt_db(tolerance.spectrum_db, 2)} dB")
+    problems += _tolerance_problems(tolerance, problems, identical, walk.first_diff, snr, level, spec)
     return Comparison(
         exact=tolerance.exact, identical=identical, fs_ref=fs_r, fs_new=fs_n,
-        samples_ref=n_r, samples_new=n_n, snr_db=snr, level_change_db=level, spectrum_db=spec,
-        band_centres_hz=centres, band_diff_db=diffs, first_difference=first_diff,
+        samples_ref=walk.n_r, samples_new=walk.n_n, snr_db=snr, level_change_db=level, spectrum_db=spec,
+        band_centres_hz=centres, band_diff_db=diffs, first_difference=walk.first_diff,
         passed=not problems, problems=tuple(problems),
-        spectrum_ref=acc_r.result(), spectrum_new=acc_n.result(),
-        spectrum_diff=acc_d.result() if same_shape else None,
+        spectrum_ref=walk.acc_r.result(), spectrum_new=walk.acc_n.result(),
+        spectrum_diff=walk.acc_d.result() if walk.same_shape else None,
     )
+
+
+class _PairWalk:
+    """The sums and spectra of a reference and a new file walked block by block in step."""
+
+    def __init__(self, fr, fn):
+        self.fs_r, self.fs_n = float(fr.samplerate), float(fn.samplerate)
+        self.ch_r, self.ch_n = fr.channels, fn.channels
+        self.same_shape = self.fs_r == self.fs_n and self.ch_r == self.ch_n
+        self.acc_r, self.acc_n = SpectrumAccumulator(self.fs_r), SpectrumAccumulator(self.fs_n)
+        self.acc_d = SpectrumAccumulator(self.fs_r)
+        self.s_rr = self.s_nn = self.s_ee = 0.0
+        self.n_r = self.n_n = 0
+        self.first_diff = None
+
+    def run(self, gr, gn) -> None:
+        """Walk both block iterators in step; blocks are the same size except at the ends."""
+        br, bn = next(gr, None), next(gn, None)
+        while br is not None or bn is not None:
+            self._add(br, bn)
+            br, bn = next(gr, None), next(gn, None)
+        if self.first_diff is None and self.n_r != self.n_n:
+            self.first_diff = min(self.n_r, self.n_n)
+
+    def _add(self, br, bn) -> None:
+        if br is not None:
+            self.acc_r.add(br)
+            self.s_rr += float(np.sum(br.astype(float) ** 2))
+        if bn is not None:
+            self.acc_n.add(bn)
+            self.s_nn += float(np.sum(bn.astype(float) ** 2))
+        if br is not None and bn is not None and self.same_shape:
+            self._add_difference(br, bn)
+        elif self.same_shape:
+            tail = br if br is not None else bn
+            self.s_ee += float(np.sum(tail.astype(float) ** 2))
+        self.n_r += 0 if br is None else br.shape[0]
+        self.n_n += 0 if bn is None else bn.shape[0]
+
+    def _add_difference(self, br, bn) -> None:
+        m = min(br.shape[0], bn.shape[0])
+        d = bn[:m].astype(float) - br[:m].astype(float)
+        self.s_ee += float(np.sum(d * d))
+        self.acc_d.add(d)
+        if self.first_diff is None:
+            neq = np.nonzero(np.any(bn[:m] != br[:m], axis=1))[0]
+            if neq.size:
+                self.first_diff = self.n_r + int(neq[0])
+        # the unmatched tail of the longer block counts in full as error
+        self.s_ee += float(np.sum(br[m:].astype(float) ** 2)) + float(np.sum(bn[m:].astype(float) ** 2))
+
+    def shape_problems(self) -> list:
+        """A different rate, channel count or length: each always fails."""
+        problems = []
+        if self.fs_r != self.fs_n:
+            problems.append(f"audio rate {self.fs_n:g} Hz, reference {self.fs_r:g} Hz")
+        if self.ch_r != self.ch_n:
+            problems.append(f"{self.ch_n} channels, reference {self.ch_r}")
+        if self.n_r != self.n_n:
+            problems.append(f"length {self.n_n} samples, reference {self.n_r}")
+        return problems
+
+    def level_change_db(self) -> float:
+        """20·log10(rms_new / rms_ref); 0 for two silences, ±inf against a silence."""
+        if self.s_rr == 0 and self.s_nn == 0:
+            return 0.0
+        if self.s_rr == 0 or self.s_nn == 0:
+            return math.inf if self.s_nn > 0 else -math.inf
+        return 10.0 * math.log10((self.s_nn / max(self.n_n, 1)) / (self.s_rr / max(self.n_r, 1)))
+
+
+def _tolerance_problems(tolerance, shape_problems, identical, first_diff, snr, level, spec) -> list:
+    """What the figures break of the tolerance: any sample for an exact case, else each limit."""
+    problems = []
+    if tolerance.exact:
+        if not shape_problems and not identical:
+            problems.append(f"samples differ from sample {first_diff}")
+        return problems
+    if snr < tolerance.snr_db:
+        problems.append(f"SNR {fmt_db(snr, 1)} dB < {fmt_db(tolerance.snr_db, 1)} dB")
+    if not abs(level) <= tolerance.level_db:
+        problems.append(f"level change {fmt_db(level, 3, True)} dB exceeds {fmt_db(tolerance.level_db, 3)} dB")
+    if not spec <= tolerance.spectrum_db:
+        problems.append(f"spectral difference {fmt_db(spec, 2)} dB exceeds {fmt_db(tolerance.spectrum_db, 2)} dB")
+    return problems
 
 
 def tone_sinad_db(path, tone_hz: float, *, skip_s: Optional[float] = None) -> float:
@@ -599,7 +632,7 @@ def write_difference(ref_path, new_path, out_path, outputs=None) -> Path:
 
 
 def plot_spectra(comparison: Comparison, out_path, title: str, outputs=None) -> Path:
-    """A small PNG of the reference, new and difference spectra and the octave-band changes.
+    """A PNG of the reference, new and difference spectra and, below, the octave-band changes.
 
     Parameters
     ----------
@@ -615,6 +648,14 @@ def plot_spectra(comparison: Comparison, out_path, title: str, outputs=None) -> 
     Returns
     -------
     Path
+
+    Notes
+    -----
+    Levels are the power per bin of :class:`SpectrumAccumulator` in dBFS (a
+    full-scale sine reads 0 dB); the bin width fs/N and the Hann window's
+    noise bandwidth, 1.5 bins (Harris 1978, table 1), are stated on the axis.
+    Levels more than 140 dB under the highest (and empty bins) are drawn on a
+    marked floor.
     """
     import matplotlib
 
@@ -622,26 +663,73 @@ def plot_spectra(comparison: Comparison, out_path, title: str, outputs=None) -> 
     from matplotlib.figure import Figure
 
     out = Path(out_path)
-    fig = Figure(figsize=(6.4, 3.6), dpi=80)
-    ax = fig.add_subplot(1, 1, 1)
-    curves = [(comparison.spectrum_ref, "reference", "-"), (comparison.spectrum_new, "new", "--"),
-              (comparison.spectrum_diff, "new - reference", ":")]
-    for spectrum, label, style in curves:
+    fig = Figure(figsize=(9.0, 6.4), dpi=100)
+    ax, bands = fig.subplots(2, 1, gridspec_kw={"height_ratios": [3, 1]})
+    _plot_spectrum_curves(ax, comparison)
+    _plot_band_changes(bands, comparison)
+    fig.suptitle(title, fontsize=12)
+    fig.tight_layout()
+    with member_path(out, outputs) as tmp:
+        fig.savefig(tmp, format="png", metadata={"Software": None})
+    return out
+
+
+def _spectrum_levels(comparison: Comparison) -> list:
+    """(label, style, freqs, level dBFS) of each spectrum present, 0 Hz left out."""
+    curves = []
+    for spectrum, label, style in ((comparison.spectrum_ref, "reference", "-"),
+                                   (comparison.spectrum_new, "new", "--"),
+                                   (comparison.spectrum_diff, "new - reference", ":")):
         if spectrum is None:
             continue
         f, p = spectrum
         sel = f > 0
         with np.errstate(divide="ignore"):
-            level = np.maximum(10.0 * np.log10(np.maximum(p[sel] * 2.0, 1e-30)), -160.0)
-        ax.semilogx(f[sel], level, style, linewidth=1.0, label=label)
-    for fc, d in zip(comparison.band_centres_hz, comparison.band_diff_db):
-        ax.annotate(f"{d:+.2f}", (fc, 0.02), xycoords=("data", "axes fraction"), ha="center", fontsize=7)
-    ax.set_xlabel("frequency (Hz); octave-band change new - reference in dB along the bottom")
-    ax.set_ylabel("level per bin (dBFS)")
-    ax.set_title(title, fontsize=9)
+            curves.append((label, style, f[sel], 10.0 * np.log10(p[sel] * 2.0)))
+    return curves
+
+
+def _plot_spectrum_curves(ax, comparison: Comparison) -> None:
+    """The spectra on a log frequency axis with the unit, the bin width and a marked floor."""
+    curves = _spectrum_levels(comparison)
+    finite = [lv[np.isfinite(lv)] for *_, lv in curves]
+    top = max((float(np.max(v)) for v in finite if v.size), default=0.0)
+    top = 10.0 * math.ceil(top / 10.0)
+    floor = max(_PLOT_FLOOR_DB, top - _PLOT_RANGE_DB)
+    bin_hz = None
+    for label, style, f, level in curves:
+        ax.semilogx(f, np.maximum(np.nan_to_num(level, neginf=floor), floor), style, linewidth=1.2, label=label)
+        bin_hz = float(f[1] - f[0]) if f.size > 1 else bin_hz
+    ax.axhline(floor, color="0.4", linewidth=0.8)
+    ax.text(0.99, floor, "floor of the plot: lower levels drawn on it", transform=ax.get_yaxis_transform(),
+            ha="right", va="bottom", fontsize=9, color="0.3")
+    ax.set_ylim(floor - 5.0, top + 5.0)
+    unit = "" if bin_hz is None else f" per {bin_hz:.3g} Hz bin"
+    ax.set_ylabel(f"power{unit}, dBFS\n(a full-scale sine reads 0 dB)", fontsize=10)
+    if bin_hz is not None:
+        ax.text(0.01, 0.98, f"resolution: {bin_hz:.3g} Hz bins, Hann window\n(noise bandwidth {1.5 * bin_hz:.3g} Hz)",
+                transform=ax.transAxes, ha="left", va="top", fontsize=9, color="0.3")
+    ax.set_xlabel("frequency, Hz", fontsize=10)
+    ax.tick_params(labelsize=9)
     ax.grid(True, which="both", alpha=0.3)
-    ax.legend(fontsize=8)
-    fig.tight_layout()
-    with member_path(out, outputs) as tmp:
-        fig.savefig(tmp, format="png", metadata={"Software": None})
-    return out
+    ax.legend(fontsize=10, loc="upper right")
+
+
+def _plot_band_changes(ax, comparison: Comparison) -> None:
+    """The octave-band level change new - reference as labelled bars."""
+    centres = list(comparison.band_centres_hz)
+    diffs = [float(d) for d in comparison.band_diff_db]
+    x = np.arange(len(centres))
+    ax.bar(x, diffs, color="0.55")
+    ax.axhline(0.0, color="0.2", linewidth=0.8)
+    for i, d in zip(x, diffs):
+        ax.annotate(f"{d:+.2f}", (i, d), ha="center", va="bottom" if d >= 0 else "top", fontsize=9)
+    ax.set_xticks(x, [f"{c:g}" if c < 1000 else f"{c / 1e3:g}k" for c in centres])
+    ax.set_xlabel("octave band centre, Hz", fontsize=10)
+    ax.set_ylabel("change new - ref\ndB", fontsize=10)
+    ax.tick_params(labelsize=9)
+    lo = min([0.0] + diffs)
+    hi = max([0.0] + diffs)
+    pad = 0.25 * (hi - lo) or 1.0
+    ax.set_ylim(lo - pad, hi + pad)
+    ax.grid(True, axis="y", alpha=0.3)

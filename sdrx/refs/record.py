@@ -91,49 +91,65 @@ def record_cases(cases_file, store, *, names=None, update: bool = False,
     cases = select_cases(cf, names)
     st = Store.for_record(store)
     if not update:
-        for c in cases:
-            if st.has(c.name):
-                raise OutputError(f"--store {st.path}: a reference for case {c.name!r} exists already; "
-                                  "pass --update to replace it")
+        _refuse_existing(st, cases)
     prepared = [prepare_case(c) for c in cases]
     ver = versions()
     results = []
     for i, prep in enumerate(prepared):
-        t0 = time.perf_counter()
-        case = prep.case
-        hashes = capture_hashes(prep.info)
-        replaced = st.has(case.name)
-        with temp_workdir() as wd:
-            wav, summary = run_case(prep, wd)
-            fig = audio_figures(wav)
-            tone = truth_tone_hz(case.capture, case.tune_hz)
-            sinad = None if tone is None else tone_sinad_db(wav, tone)
-            metrics = fig.to_json()
-            metrics["sinad_db"] = sinad
-            metrics["sinad_tone_hz"] = tone
-            metrics["audio_bandwidth_hz"] = audio_bandwidth_hz(design_chain(prep.chain_spec), case.tune_hz,
-                                                               path=case.path)
-            metrics["audio_bandwidth_definition"] = AUDIO_BANDWIDTH_DEFINITION
-            entry = {
-                "case": case.to_json(),
-                "chain": {"name": prep.chain_name, "spec": prep.chain_spec},
-                "capture": {**hashes, "info": _portable_info(prep.info, case.capture_text)},
-                "versions": ver,
-                "metrics": metrics,
-                "summary": clean_json(_portable_summary(summary)),
-            }
-            dest = st.write_case(case.name, entry, wav)
-        res = RecordResult(name=case.name, audio_path=dest, level_dbfs=metrics["level_dbfs"],
-                           audio_bandwidth_hz=metrics["audio_bandwidth_hz"],
-                           occupied_bandwidth_hz=fig.occupied_bandwidth_hz, sinad_db=clean_json(sinad),
-                           replaced=replaced,
-                           time_s=time.perf_counter() - t0)
+        res = _record_case(prep, st, ver)
         results.append(res)
         if on_result is not None:
             on_result(res)
         if progress is not None:
             progress(i + 1, len(prepared))
     return results
+
+
+def _refuse_existing(st, cases) -> None:
+    """Refuse, before any work, to replace a reference without --update."""
+    for c in cases:
+        if st.has(c.name):
+            raise OutputError(f"--store {st.path}: a reference for case {c.name!r} exists already; "
+                              "pass --update to replace it")
+
+
+def _record_case(prep, st, ver) -> RecordResult:
+    """Run one case, measure its audio and store it with its manifest entry."""
+    t0 = time.perf_counter()
+    case = prep.case
+    hashes = capture_hashes(prep.info)
+    replaced = st.has(case.name)
+    with temp_workdir() as wd:
+        wav, summary = run_case(prep, wd)
+        fig = audio_figures(wav)
+        metrics = _case_metrics(prep, wav, fig)
+        entry = {
+            "case": case.to_json(),
+            "chain": {"name": prep.chain_name, "spec": prep.chain_spec},
+            "capture": {**hashes, "info": _portable_info(prep.info, case.capture_text)},
+            "versions": ver,
+            "metrics": metrics,
+            "summary": clean_json(_portable_summary(summary)),
+        }
+        dest = st.write_case(case.name, entry, wav)
+    return RecordResult(name=case.name, audio_path=dest, level_dbfs=metrics["level_dbfs"],
+                        audio_bandwidth_hz=metrics["audio_bandwidth_hz"],
+                        occupied_bandwidth_hz=fig.occupied_bandwidth_hz, sinad_db=clean_json(metrics["sinad_db"]),
+                        replaced=replaced,
+                        time_s=time.perf_counter() - t0)
+
+
+def _case_metrics(prep, wav, fig) -> dict:
+    """The output figures of a case: level and bandwidths, SINAD of a single-tone station, audio bandwidth."""
+    case = prep.case
+    tone = truth_tone_hz(case.capture, case.tune_hz)
+    sinad = None if tone is None else tone_sinad_db(wav, tone)
+    metrics = fig.to_json()
+    metrics["sinad_db"] = sinad
+    metrics["sinad_tone_hz"] = tone
+    metrics["audio_bandwidth_hz"] = audio_bandwidth_hz(design_chain(prep.chain_spec), case.tune_hz, path=case.path)
+    metrics["audio_bandwidth_definition"] = AUDIO_BANDWIDTH_DEFINITION
+    return metrics
 
 
 def _portable_info(info, capture_text: str) -> dict:

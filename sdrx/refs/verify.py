@@ -27,7 +27,7 @@ import contextlib
 import json
 import math
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Callable, Optional
 
@@ -301,10 +301,7 @@ def verify_cases(cases_file, store, *, names=None, junit=None, failures_dir=None
     cf = load_cases(cases_file)
     cases = select_cases(cf, names)
     st = Store.open(store)
-    refs = {}
-    for c in cases:
-        st.entry(c.name)
-        refs[c.name] = st.check_audio(c.name)
+    refs = _reference_wavs(st, cases)
     prepared = [prepare_case(c) for c in cases]
     junit_path = None
     if junit is not None:
@@ -325,56 +322,87 @@ def verify_cases(cases_file, store, *, names=None, junit=None, failures_dir=None
     return report
 
 
+def _reference_wavs(st, cases) -> dict:
+    """Each case's stored reference WAV, checked before any work (its entry and its hash)."""
+    refs = {}
+    for c in cases:
+        st.entry(c.name)
+        refs[c.name] = st.check_audio(c.name)
+    return refs
+
+
 def _run_cases(prepared, st, refs, failures, on_result, progress) -> list:
     now = versions()
     results = []
     for i, prep in enumerate(prepared):
         t0 = time.perf_counter()
-        case = prep.case
-        entry = st.entry(case.name)
-        notes = _version_notes(entry["versions"], now)
-        recorded_case = dict(entry["case"])
-        current_case = case.to_json()
-        diffs = dict_differences({k: v for k, v in recorded_case.items() if k != "tolerance"},
-                                 {k: v for k, v in current_case.items() if k != "tolerance"})
-        if diffs:
-            notes.append("case differs from the recorded one: " + ", ".join(diffs))
-        hashes = capture_hashes(prep.info)
-        rec_cap = entry["capture"]
-        if hashes["sha256"] != rec_cap["sha256"] or hashes["meta_sha256"] != rec_cap["meta_sha256"]:
-            which = "data" if hashes["sha256"] != rec_cap["sha256"] else "metadata"
-            old = rec_cap["sha256"] if which == "data" else rec_cap["meta_sha256"]
-            new = hashes["sha256"] if which == "data" else hashes["meta_sha256"]
-            res = CaseResult(
-                name=case.name, status="changed",
-                summary=f"capture changed ({which} sha256 {str(old)[:12]}... -> {str(new)[:12]}...), "
-                        "not a DSP regression; not compared",
-                problems=(f"re-record with sdrx refs record --update --case {case.name} if the new capture is intended",),
-                notes=tuple(notes), time_s=time.perf_counter() - t0)
-        else:
-            spec_diffs = dict_differences(entry["chain"].get("spec"), prep.chain_spec)
-            if spec_diffs:
-                notes.append("chain spec differs from the recorded one: " + ", ".join(spec_diffs))
-            with temp_workdir() as wd:
-                wav, _summary = run_case(prep, wd)
-                cmp = compare_audio(refs[case.name], wav, case.tolerance)
-                artifacts = []
-                if not cmp.passed:
-                    if cmp.fs_ref == cmp.fs_new and cmp.samples_ref and cmp.samples_new:
-                        artifacts.append(write_difference(refs[case.name], wav, failures.path(f"{case.name}.diff.wav"),
-                                                          failures.outputs))
-                    artifacts.append(plot_spectra(cmp, failures.path(f"{case.name}.spectra.png"),
-                                                  f"{case.name}: reference vs new", failures.outputs))
-            res = CaseResult(name=case.name, status="pass" if cmp.passed else "fail",
-                             summary=_figures_summary(case.tolerance, cmp), problems=cmp.problems,
-                             notes=tuple(notes), figures=cmp.to_json(), artifacts=tuple(artifacts),
-                             time_s=time.perf_counter() - t0)
+        entry = st.entry(prep.case.name)
+        notes = _case_notes(entry, prep.case, now)
+        res = _capture_changed(prep, entry, notes)
+        if res is None:
+            res = _compare_case(prep, entry, refs[prep.case.name], failures, notes)
+        res = replace(res, time_s=time.perf_counter() - t0)
         results.append(res)
         if on_result is not None:
             on_result(res)
         if progress is not None:
             progress(i + 1, len(prepared))
     return results
+
+
+def _case_notes(entry, case, now) -> list:
+    """Notes on what differs from the recording: versions, and the case's keys (its tolerance aside)."""
+    notes = _version_notes(entry["versions"], now)
+    recorded_case = dict(entry["case"])
+    current_case = case.to_json()
+    diffs = dict_differences({k: v for k, v in recorded_case.items() if k != "tolerance"},
+                             {k: v for k, v in current_case.items() if k != "tolerance"})
+    if diffs:
+        notes.append("case differs from the recorded one: " + ", ".join(diffs))
+    return notes
+
+
+def _capture_changed(prep, entry, notes) -> Optional[CaseResult]:
+    """A ``changed`` result when the capture's data or metadata hash is not the recorded one, else None."""
+    hashes = capture_hashes(prep.info)
+    rec_cap = entry["capture"]
+    if hashes["sha256"] == rec_cap["sha256"] and hashes["meta_sha256"] == rec_cap["meta_sha256"]:
+        return None
+    which = "data" if hashes["sha256"] != rec_cap["sha256"] else "metadata"
+    old = rec_cap["sha256"] if which == "data" else rec_cap["meta_sha256"]
+    new = hashes["sha256"] if which == "data" else hashes["meta_sha256"]
+    name = prep.case.name
+    return CaseResult(
+        name=name, status="changed",
+        summary=f"capture changed ({which} sha256 {str(old)[:12]}... -> {str(new)[:12]}...), "
+                "not a DSP regression; not compared",
+        problems=(f"re-record with sdrx refs record --update --case {name} if the new capture is intended",),
+        notes=tuple(notes))
+
+
+def _compare_case(prep, entry, ref_wav, failures, notes) -> CaseResult:
+    """Rerun the case, compare its audio with the reference, and write the artifacts of a failure."""
+    case = prep.case
+    spec_diffs = dict_differences(entry["chain"].get("spec"), prep.chain_spec)
+    if spec_diffs:
+        notes.append("chain spec differs from the recorded one: " + ", ".join(spec_diffs))
+    with temp_workdir() as wd:
+        wav, _summary = run_case(prep, wd)
+        cmp = compare_audio(ref_wav, wav, case.tolerance)
+        artifacts = [] if cmp.passed else _failure_artifacts(case.name, ref_wav, wav, cmp, failures)
+    return CaseResult(name=case.name, status="pass" if cmp.passed else "fail",
+                      summary=_figures_summary(case.tolerance, cmp), problems=cmp.problems,
+                      notes=tuple(notes), figures=cmp.to_json(), artifacts=tuple(artifacts))
+
+
+def _failure_artifacts(name, ref_wav, wav, cmp, failures) -> list:
+    """The difference WAV (when the two can be subtracted) and the spectra PNG of a failing case."""
+    artifacts = []
+    if cmp.fs_ref == cmp.fs_new and cmp.samples_ref and cmp.samples_new:
+        artifacts.append(write_difference(ref_wav, wav, failures.path(f"{name}.diff.wav"), failures.outputs))
+    artifacts.append(plot_spectra(cmp, failures.path(f"{name}.spectra.png"), f"{name}: reference vs new",
+                                  failures.outputs))
+    return artifacts
 
 
 def _write_junit(junit_path, results, cases_path) -> None:

@@ -101,21 +101,24 @@ def _difference(meas: dict, des: dict, designed_fn) -> dict:
 
 
 def _carriers(reader, design, tune_hz, spacing_hz, start_s, duration_s, progress):
-    from ..analysis.survey import survey_carriers
+    from ..analysis.survey import round_to_resolution, survey_carriers
 
     found = survey_carriers(reader, spacing_hz=spacing_hz, start_s=start_s, duration_s=duration_s,
                             progress=progress)
     image = design.image_hz(tune_hz)
     rows = []
     for c in found:
-        off = c.freq_hz - tune_hz
-        on_image = abs(c.freq_hz - image) <= spacing_hz / 2
-        if abs(off) > NEAR_CHANNELS * spacing_hz + spacing_hz / 2 and abs(c.freq_hz - image) > spacing_hz * 1.5:
+        # each carrier where it is (its interpolated line), not at the channel of the grid it was found on
+        f = c.line_hz
+        off = f - tune_hz
+        on_image = abs(f - image) <= spacing_hz / 2
+        if abs(off) > NEAR_CHANNELS * spacing_hz + spacing_hz / 2 and abs(f - image) > spacing_hz * 1.5:
             continue
-        rel = float(sel.relative_response_db(design, tune_hz, [c.freq_hz])[0])
+        rel = float(sel.relative_response_db(design, tune_hz, [f])[0])
         rows.append({
-            "freq_hz": _hz(c.freq_hz),
-            "offset_hz": _hz(off),
+            "freq_hz": _hz(round_to_resolution(f, c.offset_resolution_hz)),
+            "channel_hz": _hz(c.freq_hz),
+            "offset_hz": _hz(round_to_resolution(off, c.offset_resolution_hz)),
             "antenna_dbfs": _db(c.level_dbfs),
             "selectivity_db": _db(rel),
             "detector_dbfs": _db(c.level_dbfs + rel),
