@@ -69,6 +69,7 @@ th{text-align:left;background:#f0efe9} td.l{text-align:left}
 .result{font-weight:600;margin:.6em 0}
 img.plot{max-width:100%;border:1px solid #ccc;background:#fff}
 .hint{color:#666;font-size:.9em}
+.caution{border-left:4px solid #a11;background:#fff4f0;padding:.4em .8em;margin:.6em 0}
 """
 
 _JS = r"""
@@ -359,7 +360,28 @@ def _head(model: dict) -> list:
         f"{_e(format(model['target_lufs'], '.1f'))} LUFS integrated loudness (ITU-R BS.1770), "
         "sample peaks at or below −1 dBFS.</p>"
     )
+    parts += _cautions(model["specs"])
     return parts
+
+
+def _cautions(specs: list) -> list:
+    """Hearing (the gain the matching applied, peaks near full scale) and never transmitting a capture."""
+    gains = [s["gain_db"] for s in specs if s.get("gain_db") is not None]
+    if not gains:
+        applied = ""
+    elif len(gains) == 1 or min(gains) == max(gains):
+        applied = f"the loudness matching applied {_e(format(gains[0], '+.1f'))} dB of gain and "
+    else:
+        applied = (f"the loudness matching applied {_e(format(min(gains), '+.1f'))} to "
+                   f"{_e(format(max(gains), '+.1f'))} dB of gain and ")
+    return [
+        '<p class="caution" id="caution-hearing"><b>Hearing:</b> start at a low volume, above all on '
+        f"headphones, and raise it slowly: {applied}the outputs' peaks reach up to −1 dBFS, just under "
+        "full scale; an output is loud from its first moment (there is no fade-in).</p>",
+        '<p class="caution" id="caution-transmit"><b>Never transmit a capture:</b> synthesized and recorded '
+        "captures are for receiving software. Do not replay them through SDR hardware that can transmit "
+        "(local licensing law applies).</p>",
+    ]
 
 
 def _player(specs: list, duration_s: float) -> list:
@@ -412,8 +434,9 @@ def _figures(model: dict) -> list:
     parts.append(_figure_rows(specs, model.get("spacing_hz")))
     parts.append("</table>")
     parts.append('<p class="hint">Bandwidths and rejections are of the designed chain (single-signal '
-                 "response, AGC off). Audio bandwidth: where the output's long-term spectrum falls 20 dB "
-                 "below its mean level over 300 Hz–1 kHz. SINAD: only when the capture's truth sidecar gives "
+                 "response, AGC off). Audio bandwidth: the highest modulating frequency at which the output "
+                 "is 3 dB below its output at 1 kHz, for AM test tones of equal depth through the chain with "
+                 "the AGC held. SINAD: only when the capture's truth sidecar gives "
                  "the station a single tone. At the detector: what the receiver measured while it ran (the "
                  "carrier over the noise around the channel in the chain's noise bandwidth; the image and "
                  "adjacent carriers after the chain's response, against the wanted carrier; the carrier's "
