@@ -49,7 +49,9 @@ def command(capture, tune, chain, out, summary, path, if_rate, full_scale_dbm, f
 
     Example:
 
-        sdrx receive demo_signals/coast.sigmf-meta --tune 1130k --chain narrow -o harbour.wav --summary harbour.json
+    \b
+        sdrx receive demo_signals/coast.sigmf-meta --tune 1130k --chain narrow \\
+            -o demo_out/tidewater-1130k.wav --summary demo_out/tidewater-1130k.json
 
     With --correct (dc, iq, clock, all) the recorder's faults are estimated
     over the excerpt and undone before the chain; the summary's
