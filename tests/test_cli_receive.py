@@ -205,3 +205,9 @@ def test_help_example_names_its_outputs_after_the_station_it_tunes(capsys):
     assert len(outputs) == 2
     for path in outputs:
         assert word in path and tune in path, (path, station["name"])
+
+
+def test_the_run_line_prints_rates_and_frequencies_in_khz_and_mhz(tmp_path, capture, capsys):
+    rc, out, err = run(["receive", capture, "--tune", "1M", "-o", tmp_path / "a.wav", "--quiet"], capsys)
+    assert rc == 0, err
+    assert "s at 48 kHz;" in out and "LO 1.455 MHz, image 1.91 MHz" in out and "e+0" not in out
