@@ -3,6 +3,7 @@
 import io
 import os
 import re
+import select
 
 from sdrx.progress import TerminalBar, make_progress
 
@@ -46,7 +47,9 @@ def test_bar_only_on_a_terminal():
             bar(50, 100)
             bar.close()
             assert make_progress("receive", quiet=True, stream=tty) is None
-        drawn = os.read(master, 4096).decode()
+        drawn = ""
+        while not drawn.endswith("\n") and select.select([master], [], [], 2.0)[0]:
+            drawn += os.read(master, 4096).decode()   # the terminal may hand the line over in pieces
         assert "50.0%" in drawn and "left" in drawn and drawn.endswith("\n")
     finally:
         os.close(master)
