@@ -375,10 +375,10 @@ def _cautions(specs: list) -> list:
         applied = (f"the loudness matching applied {_e(format(min(gains), '+.1f'))} to "
                    f"{_e(format(max(gains), '+.1f'))} dB of gain and ")
     return [
-        '<p class="caution" id="caution-hearing"><b>Hearing:</b> start at a low volume, above all on '
+        '<p class="caution" id="caution-hearing"><strong>Hearing:</strong> start at a low volume, above all on '
         f"headphones, and raise it slowly: {applied}the outputs' peaks reach up to −1 dBFS, just under "
         "full scale; an output is loud from its first moment (there is no fade-in).</p>",
-        '<p class="caution" id="caution-transmit"><b>Never transmit a capture:</b> synthesized and recorded '
+        '<p class="caution" id="caution-transmit"><strong>Never transmit a capture:</strong> synthesized and recorded '
         "captures are for receiving software. Do not replay them through SDR hardware that can transmit "
         "(local licensing law applies).</p>",
     ]
