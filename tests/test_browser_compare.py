@@ -72,6 +72,17 @@ def run_page_checks(page, folder, key, second_label):
     page.goto((folder / "index.html").as_uri())
     _wait(page, lambda st: all(a["ready"] >= 3 for a in st), what="audio loaded")
 
+    # the cautions are on screen above the player: hearing, with the gains the matching applied, and transmitting
+    player_top = page.locator("#player").bounding_box()["y"]
+    for sel in ("#caution-hearing", "#caution-transmit"):
+        assert page.is_visible(sel)
+        assert page.locator(sel).bounding_box()["y"] < player_top
+    gains = [s["gain_db"] for s in json.loads((folder / "compare.json").read_text())["specs"]]
+    hearing = page.inner_text("#caution-hearing")
+    assert "low volume" in hearing and "headphones" in hearing
+    assert f"{min(gains):+.1f} to {max(gains):+.1f} dB of gain" in hearing
+    assert "never transmit" in page.inner_text("#caution-transmit").lower()
+
     # play A (the first output), then switch to B at the same position
     page.click("#src-0")
     page.click("#play")

@@ -187,3 +187,27 @@ def test_both_paths_warn_when_the_image_is_outside_the_capture(tmp_path, capture
     assert rc in (0, None), se
     warnings = json.loads((tmp_path / "out.json").read_text())["warnings"]
     assert any("image channel 1.91 MHz is outside the capture" in w for w in warnings), warnings
+
+
+def test_help_example_names_its_outputs_after_the_station_it_tunes(capsys):
+    import re
+
+    from sdrx.tomlfile import read_toml
+
+    rc, out, _ = run(["receive", "--help"], capsys)
+    assert rc == 0
+    example = " ".join(out.split("Example:")[1].split("With --correct")[0].replace("\\", " ").split())
+    tune = re.search(r"--tune (\S+)", example).group(1)
+    scenario = read_toml(Path(__file__).resolve().parents[1] / "demo_signals" / "coast.toml")
+    station = next(s for s in scenario["station"] if s["frequency"] == tune)
+    word = station["name"].split()[0].lower()          # Tidewater Voice at 1130k
+    outputs = re.findall(r"(?:-o|--summary) (\S+)", example)
+    assert len(outputs) == 2
+    for path in outputs:
+        assert word in path and tune in path, (path, station["name"])
+
+
+def test_the_run_line_prints_rates_and_frequencies_in_khz_and_mhz(tmp_path, capture, capsys):
+    rc, out, err = run(["receive", capture, "--tune", "1M", "-o", tmp_path / "a.wav", "--quiet"], capsys)
+    assert rc == 0, err
+    assert "s at 48 kHz;" in out and "LO 1.455 MHz, image 1.91 MHz" in out and "e+0" not in out

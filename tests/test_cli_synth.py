@@ -282,3 +282,14 @@ def test_demo_holds_the_image_pair_and_the_adjacent_pair():
     assert {"speech", "music"} <= kinds
     assert truth["capture"]["over_full_scale"] == 0
     assert os.path.getsize(DEMO / "coast.sigmf-data") == truth["capture"]["samples"] * 4  # ci16_le
+
+
+def test_frequencies_print_in_khz_and_mhz_not_exponents(tmp_path, capsys):
+    p = tmp_path / "fast.toml"
+    p.write_text(SCENARIO.replace('rate = "400k"', 'rate = "1.2M"').replace("seconds = 0.1", "seconds = 0.01"))
+    rc, stdout, err = run(["synth", p, "-o", tmp_path / "cap.sigmf-meta"], capsys)
+    assert rc == 0, err
+    assert "iq ci16_le at 1.2 MHz, 0.01 s" in stdout and "e+0" not in stdout
+    rc, _, err = run(["synth", p, "-o", tmp_path / "none.sigmf-meta", "--seconds", "1e-9"], capsys)
+    assert rc == 2 and err.count("\n") == 1
+    assert "1e-09 s holds no sample at 1.2 MHz" in err, err

@@ -84,3 +84,25 @@ def test_single_tone_from_truth(tmp_path):
     assert single_tone_hz(cap, 1.03e6) is None
     assert single_tone_hz(cap, 1.05e6) is None  # no station there
     assert single_tone_hz(tmp_path / "other.wav", 1e6) is None  # no sidecar
+
+
+def test_selectivity_plot_names_its_grey_lines_in_words():
+    from matplotlib.figure import Figure
+
+    from sdrx.compare.plot import _reference_lines
+
+    def labels(spacing_hz):
+        ax = Figure().add_subplot(1, 1, 1)
+        _reference_lines(ax, spacing_hz, 30e3)
+        y = [t.get_text() for a in ax.child_axes for t in a.get_yticklabels()]
+        x = [t.get_text() for a in ax.child_axes for t in a.get_xticklabels()]
+        levels = sorted(ln.get_ydata()[0] for ln in ax.get_lines() if ln.get_ydata()[0] == ln.get_ydata()[1])
+        channels = sorted(ln.get_xdata()[0] for ln in ax.get_lines() if ln.get_xdata()[0] == ln.get_xdata()[1])
+        return y, x, (levels, channels)
+
+    y, x, grey = labels(9e3)
+    assert y == ["−6 dB\nbandwidth", "−60 dB\nbandwidth"]
+    assert x == ["adjacent channel\n−9 kHz", "adjacent channel\n+9 kHz"]
+    assert grey == ([-60.0, -6.0], [-9.0, 9.0])      # the lines those labels name
+    y, x, grey = labels(None)
+    assert len(y) == 2 and x == [] and grey == ([-60.0, -6.0], [])

@@ -240,3 +240,15 @@ def test_selectivity_plot_colour_blind_safe_and_literal_labels():
         # source: Okabe & Ito (2008) colour-universal palette; each curve is drawn in its colour
         assert (np.abs(img - rgb).max(axis=-1) < 0.02).sum() > 50, hexcol
     assert len(set(map(str, STYLES[:3]))) == 3
+
+
+def test_page_cautions_give_the_gains_applied_and_say_never_transmit(tmp_path, rng):
+    out, result = make(tmp_path, rng)
+    text = visible_text((out / "index.html").read_text(encoding="utf-8"))
+    gains = [s["gain_db"] for s in result["specs"]]
+    # fake outputs at 0.8, 0.05 and 0.3 of full scale: the quiet one is raised by more than 20 dB
+    assert max(gains) > 20
+    assert f"applied {min(gains):+.1f} to {max(gains):+.1f} dB of gain" in text
+    assert "start at a low volume, above all on headphones" in text
+    assert "Never transmit a capture" in text and "local licensing law applies" in text
+    assert text.index("Hearing:") < text.index("Listen")

@@ -60,7 +60,7 @@ def cli(ctx, debug):
     Run a capture through a receiver chain you specify, and see what that
     chain does. Example:
 
-        sdrx receive demo_signals/coast.sigmf-meta --tune 1130k -o out.wav
+        sdrx receive demo_signals/coast.sigmf-meta --tune 1130k -o demo_out/tidewater-1130k.wav
     """
     ctx.ensure_object(dict)
     ctx.obj["debug"] = debug

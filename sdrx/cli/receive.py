@@ -76,13 +76,16 @@ def command(capture, tune, chain, out, summary, path, if_rate, full_scale_dbm, f
 
     Example:
 
-        sdrx receive demo_signals/coast.sigmf-meta --tune 1130k --chain narrow -o harbour.wav --summary harbour.json
+    \b
+        sdrx receive demo_signals/coast.sigmf-meta --tune 1130k --chain narrow \\
+            -o demo_out/tidewater-1130k.wav --summary demo_out/tidewater-1130k.json
 
     With --correct (dc, iq, clock, all) the recorder's faults are estimated
     over the excerpt and undone before the chain; the summary's
     "corrections" gives the values used.
     """
     from ..run import receive
+    from ..units import format_frequency
 
     bar = progress_for("receive", quiet)
     try:
@@ -97,9 +100,9 @@ def command(capture, tune, chain, out, summary, path, if_rate, full_scale_dbm, f
     dbm = s["carrier_dbm"]
     in_dbm = f" = {dbm['mean']:.1f} dBm" if dbm is not None and dbm["mean"] is not None else ""
     click.echo(
-        f"{out}: {s['output']['seconds']:.3f} s at {s['output']['rate_hz']:g} Hz; "
+        f"{out}: {s['output']['seconds']:.3f} s at {format_frequency(s['output']['rate_hz'])}; "
         f"carrier {c['mean']:.1f} dBFS{in_dbm} (min {c['min']:.1f}, max {c['max']:.1f}); "
-        f"LO {s['lo_hz'] / 1e3:g} kHz, image {s['image_hz'] / 1e3:g} kHz"
+        f"LO {format_frequency(s['lo_hz'])}, image {format_frequency(s['image_hz'])}"
         if c["mean"] is not None else f"{out}: {s['output']['seconds']:.3f} s"
     )
     for w in s["warnings"]:

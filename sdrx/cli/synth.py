@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import click
 
+from ..units import format_frequency
 from .common import SdrxCommand, progress_for
 
 __all__ = ["command"]
@@ -29,7 +30,7 @@ def command(scenario, out, seconds, seed, force, quiet):
 
     Example:
 
-        sdrx synth demo_signals/coast.toml -o coast.sigmf-meta
+        sdrx synth demo_signals/coast.toml -o demo_out/coast.sigmf-meta --force
     """
     from ..synth import synthesize
 
@@ -41,7 +42,7 @@ def command(scenario, out, seconds, seed, force, quiet):
             bar.close()
     if not quiet:
         cap = truth["capture"]
-        msg = (f"wrote {out}: {cap['kind']} {cap['datatype']} at {cap['rate_hz']:g} Hz, {cap['seconds']:g} s, "
+        msg = (f"wrote {out}: {cap['kind']} {cap['datatype']} at {format_frequency(cap['rate_hz'])}, {cap['seconds']:g} s, "
                f"{len(truth['stations'])} station(s); truth in {truth_name(out)}")
         click.echo(msg)
         if cap["over_full_scale"]:

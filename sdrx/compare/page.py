@@ -69,6 +69,7 @@ th{text-align:left;background:#f0efe9} td.l{text-align:left}
 .result{font-weight:600;margin:.6em 0}
 img.plot{max-width:100%;border:1px solid #ccc;background:#fff}
 .hint{color:#666;font-size:.9em}
+.caution{border-left:4px solid #a11;background:#fff4f0;padding:.4em .8em;margin:.6em 0}
 """
 
 _JS = r"""
@@ -315,9 +316,20 @@ def render_page(model: dict) -> str:
     """
     specs = model["specs"]
     blind = model.get("blind")
+    parts = _head(model) + _player(specs, model["duration_s"])
+    if blind:
+        parts += _blind_trials(blind)
+    parts += _figures(model)
+    parts += _audio_and_data(specs, _script_data(model))
+    return "\n".join(parts) + "\n"
+
+
+def _script_data(model: dict) -> dict:
+    """What the page's script reads: the duration, each output's label and file, the blind trials."""
+    blind = model.get("blind")
     data = {
         "duration_s": float(model["duration_s"]),
-        "specs": [{"label": s["label"], "wav": s["wav"]} for s in specs],
+        "specs": [{"label": s["label"], "wav": s["wav"]} for s in model["specs"]],
         "blind": None,
     }
     if blind:
@@ -328,6 +340,11 @@ def render_page(model: dict) -> str:
             "salt": blind["salt"],
             "chance": blind["chance"],
         }
+    return data
+
+
+def _head(model: dict) -> list:
+    """The document head, the title, the subtitle lines and how the outputs were matched."""
     parts = [
         "<!DOCTYPE html>",
         '<html lang="en"><head><meta charset="utf-8">',
@@ -343,10 +360,35 @@ def render_page(model: dict) -> str:
         f"{_e(format(model['target_lufs'], '.1f'))} LUFS integrated loudness (ITU-R BS.1770), "
         "sample peaks at or below −1 dBFS.</p>"
     )
-    # player
-    parts.append('<h2>Listen</h2><section id="player"><div class="transport">')
+    parts += _cautions(model["specs"])
+    return parts
+
+
+def _cautions(specs: list) -> list:
+    """Hearing (the gain the matching applied, peaks near full scale) and never transmitting a capture."""
+    gains = [s["gain_db"] for s in specs if s.get("gain_db") is not None]
+    if not gains:
+        applied = ""
+    elif len(gains) == 1 or min(gains) == max(gains):
+        applied = f"the loudness matching applied {_e(format(gains[0], '+.1f'))} dB of gain and "
+    else:
+        applied = (f"the loudness matching applied {_e(format(min(gains), '+.1f'))} to "
+                   f"{_e(format(max(gains), '+.1f'))} dB of gain and ")
+    return [
+        '<p class="caution" id="caution-hearing"><strong>Hearing:</strong> start at a low volume, above all on '
+        f"headphones, and raise it slowly: {applied}the outputs' peaks reach up to −1 dBFS, just under "
+        "full scale; an output is loud from its first moment (there is no fade-in).</p>",
+        '<p class="caution" id="caution-transmit"><strong>Never transmit a capture:</strong> synthesized and recorded '
+        "captures are for receiving software. Do not replay them through SDR hardware that can transmit "
+        "(local licensing law applies).</p>",
+    ]
+
+
+def _player(specs: list, duration_s: float) -> list:
+    """The transport (play, seek, loop) and one button per output."""
+    parts = ['<h2>Listen</h2><section id="player"><div class="transport">']
     parts.append('<button id="play" type="button">Play</button>')
-    parts.append(f'<input id="seek" type="range" min="0" max="{model["duration_s"]:.3f}" step="0.01" value="0">')
+    parts.append(f'<input id="seek" type="range" min="0" max="{duration_s:.3f}" step="0.01" value="0">')
     parts.append('<span id="time">0:00.0</span>')
     parts.append('<label><input id="loop" type="checkbox" checked> loop</label></div>')
     parts.append('<div class="sources">')
@@ -357,35 +399,44 @@ def render_page(model: dict) -> str:
     parts.append(f'<p id="now">Now playing: {_e(specs[0]["label"])}</p>')
     parts.append('<p class="hint">Switching keeps the playback position. Keys: 1–9 choose an output, '
                  "space plays or pauses.</p></section>")
-    # blind trials
-    if blind:
-        n = len(blind["trials"])
-        parts.append(f'<h2>Blind trials (A/B/X)</h2><section id="blind">')
-        parts.append("<p>In each trial X is either A or B. Listen, then say which. "
-                     "The key and the score are shown only when you ask.</p>")
-        parts.append('<table class="trial">')
-        for t, tr in enumerate(blind["trials"]):
-            parts.append(
-                f'<tr id="trial-{t}"><td>Trial {t + 1}</td>'
-                f"<td>A = {_e(tr['a'])}, B = {_e(tr['b'])}</td><td>"
-                + "".join(f'<button type="button" class="play-trial" id="play-{t}-{r}" data-trial="{t}" '
-                          f'data-role="{r}">{r}</button>' for r in ("A", "B", "X"))
-                + "</td><td>X is "
-                + "".join(f'<button type="button" class="answer" id="answer-{t}-{r}" data-trial="{t}" '
-                          f'data-answer="{r}">{r}</button>' for r in ("A", "B"))
-                + f'</td><td id="key-{t}"></td></tr>'
-            )
-        parts.append("</table>")
-        parts.append(f'<p id="answered">Answered 0 of {n}.</p>')
-        parts.append('<button type="button" id="reveal">Reveal key and score</button>')
-        parts.append('<p class="result" id="result"></p></section>')
-    # figures
-    parts.append("<h2>Figures</h2><section id=\"figures\"><table>")
+    return parts
+
+
+def _blind_trials(blind: dict) -> list:
+    """One row per A/B/X trial, the count answered and the reveal button."""
+    n = len(blind["trials"])
+    parts = ['<h2>Blind trials (A/B/X)</h2><section id="blind">']
+    parts.append("<p>In each trial X is either A or B. Listen, then say which. "
+                 "The key and the score are shown only when you ask.</p>")
+    parts.append('<table class="trial">')
+    for t, tr in enumerate(blind["trials"]):
+        parts.append(
+            f'<tr id="trial-{t}"><td>Trial {t + 1}</td>'
+            f"<td>A = {_e(tr['a'])}, B = {_e(tr['b'])}</td><td>"
+            + "".join(f'<button type="button" class="play-trial" id="play-{t}-{r}" data-trial="{t}" '
+                      f'data-role="{r}">{r}</button>' for r in ("A", "B", "X"))
+            + "</td><td>X is "
+            + "".join(f'<button type="button" class="answer" id="answer-{t}-{r}" data-trial="{t}" '
+                      f'data-answer="{r}">{r}</button>' for r in ("A", "B"))
+            + f'</td><td id="key-{t}"></td></tr>'
+        )
+    parts.append("</table>")
+    parts.append(f'<p id="answered">Answered 0 of {n}.</p>')
+    parts.append('<button type="button" id="reveal">Reveal key and score</button>')
+    parts.append('<p class="result" id="result"></p></section>')
+    return parts
+
+
+def _figures(model: dict) -> list:
+    """The table of figures, what they mean, the receivers' warnings and the selectivity plot."""
+    specs = model["specs"]
+    parts = ["<h2>Figures</h2><section id=\"figures\"><table>"]
     parts.append(_figure_rows(specs, model.get("spacing_hz")))
     parts.append("</table>")
     parts.append('<p class="hint">Bandwidths and rejections are of the designed chain (single-signal '
-                 "response, AGC off). Audio bandwidth: where the output's long-term spectrum falls 20 dB "
-                 "below its mean level over 300 Hz–1 kHz. SINAD: only when the capture's truth sidecar gives "
+                 "response, AGC off). Audio bandwidth: the highest modulating frequency at which the output "
+                 "is 3 dB below its output at 1 kHz, for AM test tones of equal depth through the chain with "
+                 "the AGC held. SINAD: only when the capture's truth sidecar gives "
                  "the station a single tone. At the detector: what the receiver measured while it ran (the "
                  "carrier over the noise around the channel in the chain's noise bandwidth; the image and "
                  "adjacent carriers after the chain's response, against the wanted carrier; the carrier's "
@@ -395,11 +446,16 @@ def render_page(model: dict) -> str:
         b64 = base64.b64encode(model["plot_png"]).decode("ascii")
         parts.append(f'<img class="plot" alt="selectivity of each chain" src="data:image/png;base64,{b64}">')
     parts.append("</section>")
-    # audio elements and data
+    return parts
+
+
+def _audio_and_data(specs: list, data: dict) -> list:
+    """One audio element per output, the script's data and the script."""
+    parts = []
     for i, s in enumerate(specs):
         parts.append(f'<audio class="sdrx-audio" id="audio-{i}" preload="auto" '
                      f'src="{_e(quote(s["wav"]))}"></audio>')
     parts.append(f'<script type="application/json" id="sdrx-data">{json_for_script(data)}</script>')
     parts.append(f"<script>{_JS}</script>")
     parts.append("</body></html>")
-    return "\n".join(parts) + "\n"
+    return parts

@@ -1,10 +1,11 @@
 """``sdrx compare``: the same excerpt through several chains, fairly, on one page.
 
 Flow: parse and design every spec → validate the excerpt and the output folder
-→ run :func:`sdrx.run.receive` for each spec into a temporary folder → align
-the outputs in time (cross-correlation against the first) → match their
-integrated loudness (ITU-R BS.1770, pyloudnorm) without clipping → figures →
-write ``<label>.wav`` per spec, ``compare.json``, ``blind-key.json`` (with
+→ run :func:`sdrx.run.receive` for each spec into a temporary folder →
+:func:`sdrx.compare.write.write_comparison`: align the outputs in time
+(cross-correlation against the first), match their integrated loudness
+(ITU-R BS.1770, pyloudnorm) without clipping, figures, and write
+``<label>.wav`` per spec, ``compare.json``, ``blind-key.json`` (with
 ``--blind``) and ``index.html`` into the output folder.
 """
 
@@ -14,20 +15,16 @@ import json
 import re
 import tempfile
 from dataclasses import dataclass
-from fractions import Fraction
 from pathlib import Path
 from typing import Sequence
 
 import numpy as np
 
 from ..errors import OutputError, ParameterError
-from ..fileio import same_file, write_folder
+from ..fileio import same_file
 from ..units import format_frequency, parse_frequency, parse_seconds
 from . import blind as blind_mod
-from .align import align
-from ..analysis.audio_response import AUDIO_BANDWIDTH_DEFINITION, audio_bandwidth_hz
-from .figures import designed_figures, selectivity_curve, sinad_db
-from .loudness import integrated_loudness, match_loudness
+from .write import MARKER, file_names, write_comparison
 
 __all__ = [
     "MARKER",
@@ -39,27 +36,17 @@ __all__ = [
     "parse_spec_args",
     "check_out_dir",
     "compare",
+    "write_comparison",
 ]
 
-#: marker file that says a folder holds a comparison written by sdrx
-MARKER = ".sdrx-compare"
 #: longest excerpt accepted (every output is held in memory for alignment and loudness)
 MAX_SECONDS = 120.0
 #: excerpt length when --duration is not given (or the rest of the capture, if shorter)
 DEFAULT_SECONDS = 30.0
 #: shortest excerpt (loudness needs several 400 ms blocks)
 MIN_SECONDS = 1.0
-#: peak limit of the loudness-matched outputs
-PEAK_LIMIT_DBFS = -1.0
 #: receiver start-up (AGC pull-in from its starting gain, filter transients) left out of every output
 SETTLE_S = 0.2
-#: largest delay difference between outputs that alignment searches
-MAX_LAG_S = 0.05
-#: with designed delays known: search this far either side of their difference
-ALIGN_WINDOW_S = 0.25e-3
-KEY_FILE = "blind-key.json"
-PAGE_FILE = "index.html"
-JSON_FILE = "compare.json"
 
 _UNSAFE = re.compile(r"[^A-Za-z0-9._-]+")
 
@@ -239,56 +226,11 @@ def check_out_dir(out_dir, *, force: bool = False) -> set:
     return ours or set()
 
 
-def _resample(x: np.ndarray, fs_in: float, fs_out: float) -> np.ndarray:
-    if fs_in == fs_out:
-        return x
-    from scipy.signal import resample_poly
-
-    ratio = Fraction(fs_out / fs_in).limit_denominator(1000)
-    return resample_poly(x, ratio.numerator, ratio.denominator)
-
-
 def _truth_tone(capture_path: Path, tune_hz: float):
     """Single tone frequency of the station at ``tune_hz`` from the truth sidecar, or None."""
     from .truth import single_tone_hz
 
     return single_tone_hz(capture_path, tune_hz)
-
-
-def _wav_bytes(q: np.ndarray, fs: float) -> bytes:
-    """16-bit PCM WAV file of the codes ``q`` (soundfile: a plain header, no time stamps)."""
-    import io
-
-    import soundfile as sf
-
-    buf = io.BytesIO()
-    sf.write(buf, q, int(round(fs)), subtype="PCM_16", format="WAV")
-    return buf.getvalue()
-
-
-def _plain(obj):
-    """JSON-ready copy: numpy scalars to Python, non-finite floats to None, tuples to lists."""
-    if isinstance(obj, dict):
-        return {str(k): _plain(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_plain(v) for v in obj]
-    if isinstance(obj, (bool, np.bool_)):
-        return bool(obj)
-    if isinstance(obj, (int, np.integer)):
-        return int(obj)
-    if isinstance(obj, (float, np.floating)):
-        return float(obj) if np.isfinite(obj) else None
-    if isinstance(obj, Path):
-        return str(obj)
-    return obj
-
-
-def _json_text(obj) -> str:
-    return json.dumps(_plain(obj), indent=2, allow_nan=False) + "\n"
-
-
-def _finite_or_none(v):
-    return None if v is None or not np.isfinite(v) else float(v)
 
 
 def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, duration_s=None,
@@ -341,19 +283,59 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
     -----
     Alignment: integer lag at the peak of the cross-correlation of each output
     with the first (:func:`sdrx.compare.align.align`), searched within
-    :data:`ALIGN_WINDOW_S` of the difference of the chains' designed group
+    :data:`sdrx.compare.write.ALIGN_WINDOW_S` of the difference of the chains' designed group
     delays (``Receiver.delay_s``), outputs cut to their common span. Loudness: target ``T = min_i(L_i − 1 dBFS − P_i)`` (L integrated
     loudness by ITU-R BS.1770 via pyloudnorm, P sample peak), gain ``T − L_i``:
     all outputs at one loudness, none above −1 dBFS sample peak.
     """
+    tune, spacing = _tuning(tune_hz, spacing_hz)
+    choices = parse_spec_args(specs)
+    designs = _designs(choices, tune, spacing)
+    _check_blind_count(blind)
     from ..capture import open_capture
-    from ..chain import design_chain
 
+    reader = open_capture(capture, datatype=datatype, fs=fs, center_hz=center_hz)
+    info = reader.info
+    start, duration = _excerpt(reader, start_s, duration_s)
+    plan = _blind_plan(blind, seed, len(choices))
+    out = Path(out_dir)
+    old_files = check_out_dir(out, force=force)
+    _check_targets(out, choices, plan, info)
+
+    # the receiver starts with the AGC at its starting gain: run it from up to SETTLE_S before the
+    # excerpt and drop SETTLE_S of audio (with --start 0 the first SETTLE_S of the excerpt is not heard)
+    preroll = min(start, SETTLE_S)
+    rx_start, rx_duration = start - preroll, duration + preroll
+    from ..capture.correct import plan_corrections
+
+    fixes = plan_corrections(reader, correct, ppm=ppm, spacing_hz=spacing, start_s=rx_start,
+                             duration_s=rx_duration)
+    total = int(round(rx_duration * info.fs)) * len(choices)
+    raw, rates, summaries, delays = _receive_all(
+        capture, tune, designs, info, rx_start=rx_start, rx_duration=rx_duration, path=path, fixes=fixes,
+        spacing=spacing, progress=progress, datatype=datatype, fs=fs, center_hz=center_hz)
+    return write_comparison(
+        out, choices, designs, raw, rates, plan=plan, tune_hz=tune, spacing_hz=spacing,
+        summaries=summaries, tone_hz=_truth_tone(Path(info.path), tune), old_files=old_files,
+        designed_delays_s=delays,
+        header=_header(info, start, duration, preroll, path, fixes, spacing),
+        progress_done=(lambda: progress(total, total)) if progress is not None else None,
+    )
+
+
+def _tuning(tune_hz, spacing_hz):
+    """The tune and the channel spacing in Hz, from the options."""
     tune = parse_frequency(tune_hz, "--tune")
     spacing = parse_frequency(spacing_hz, "--spacing")
     if spacing <= 0:
         raise ParameterError(f"--spacing: {spacing_hz!r} must be above 0 (e.g. 9k or 10k)")
-    choices = parse_spec_args(specs)
+    return tune, spacing
+
+
+def _designs(choices, tune: float, spacing: float) -> list:
+    """Design every spec (an error names the spec) and check each can tune ``tune``."""
+    from ..chain import design_chain
+
     designs = []
     for i, c in enumerate(choices):
         try:
@@ -367,14 +349,19 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
 
     for d in designs:
         validate_tuning(d, tune, spacing)
-    plan_n = blind
-    if isinstance(plan_n, bool) or not isinstance(plan_n, (int, np.integer)):
+    return designs
+
+
+def _check_blind_count(blind) -> None:
+    if isinstance(blind, bool) or not isinstance(blind, (int, np.integer)):
         raise ParameterError(f"--blind: {blind!r}; give a whole number of trials")
 
-    reader = open_capture(capture, datatype=datatype, fs=fs, center_hz=center_hz)
+
+def _excerpt(reader, start_s, duration_s):
+    """Start and duration (s) of the excerpt, within the capture and compare's limits."""
     info = reader.info
     start = parse_seconds(start_s, "--start")
-    first, avail = reader.sample_range(start, None)  # CaptureError when the start is past the end
+    _, avail = reader.sample_range(start, None)  # CaptureError when the start is past the end
     rest_s = avail / info.fs
     if duration_s is None:
         duration = min(rest_s, DEFAULT_SECONDS)
@@ -394,18 +381,22 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
             f"--duration: the excerpt is {duration:.3g} s; compare needs at least {MIN_SECONDS:g} s "
             f"({info.path} is {info.seconds:.6g} s long, --start {start:g})"
         )
+    return start, duration
+
+
+def _blind_plan(blind: int, seed, n_specs: int):
+    """The blind trials (none when ``blind`` is 0); ``--seed`` only with trials to draw."""
     if seed is not None:
         if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)):
             raise ParameterError(f"--seed: {seed!r}; give a whole number >= 0")
-        if not plan_n:
+        if not blind:
             raise ParameterError(f"--seed {seed}: only draws the blind trials; add --blind N or leave --seed out")
-    plan = blind_mod.plan_trials(plan_n, len(choices), blind_mod.fresh_seed() if seed is None else int(seed))
+    return blind_mod.plan_trials(blind, n_specs, blind_mod.fresh_seed() if seed is None else int(seed))
 
-    out = Path(out_dir)
-    old_files = check_out_dir(out, force=force)
-    labels = [c.label for c in choices]
-    wav_names = [f"{lab}.wav" for lab in labels]
-    new_files = wav_names + [JSON_FILE, PAGE_FILE] + ([KEY_FILE] if plan.n else [])
+
+def _check_targets(out: Path, choices, plan, info) -> None:
+    """No file to be written is a folder or one of the inputs."""
+    _, new_files = file_names([c.label for c in choices], plan)
     inputs = [info.path, info.data_path] + [Path(c.spec) for c in choices if c.identity[0] == "file"]
     for name in new_files:
         target = out / name
@@ -414,24 +405,23 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
         if any(same_file(target, src) for src in inputs):
             raise OutputError(f"-o {out}: {name} would overwrite an input; choose another folder")
 
-    # ---- receive every spec into a temporary folder --------------------------------------
+
+def _receive_all(capture, tune, designs, info, *, rx_start, rx_duration, path, fixes, spacing, progress,
+                 datatype, fs, center_hz):
+    """Receive the excerpt through every design into a temporary folder.
+
+    Returns each chain's audio after :data:`SETTLE_S`, its rate, its run summary and
+    its designed group delay.
+    """
     import soundfile as sf
 
     from ..run import Receiver, receive
 
-    # the receiver starts with the AGC at its starting gain: run it from up to SETTLE_S before the
-    # excerpt and drop SETTLE_S of audio (with --start 0 the first SETTLE_S of the excerpt is not heard)
-    preroll = min(start, SETTLE_S)
-    rx_start, rx_duration = start - preroll, duration + preroll
-    from ..capture.correct import plan_corrections
-
-    fixes = plan_corrections(reader, correct, ppm=ppm, spacing_hz=spacing, start_s=rx_start,
-                             duration_s=rx_duration)
     n_capture = int(round(rx_duration * info.fs))
-    total = n_capture * len(choices)
+    total = n_capture * len(designs)
     raw, rates, summaries, delays = [], [], [], []
     with tempfile.TemporaryDirectory(prefix="sdrx-compare-") as tmpdir:
-        for i, (c, d) in enumerate(zip(choices, designs)):
+        for i, d in enumerate(designs):
             def sub(done, _total, _i=i):
                 if progress is not None:
                     progress(min(total, _i * n_capture + int(done)), total)
@@ -448,197 +438,22 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
             rates.append(float(afs))
             summaries.append(summary)
             delays.append(Receiver(d, info, tune, path=path).delay_s)
-    return write_comparison(
-        out, choices, designs, raw, rates, plan=plan, tune_hz=tune, spacing_hz=spacing,
-        summaries=summaries, tone_hz=_truth_tone(Path(info.path), tune), old_files=old_files,
-        designed_delays_s=delays,
-        header={
-            "capture": info.to_json(),
-            "excerpt": {"start_s": start, "duration_s": duration, "settle_s": SETTLE_S,
-                        "heard_from_s": round(start + SETTLE_S - preroll, 9)},
-            "path": path,
-            "corrections": fixes.to_json(),
-            "subtitle": (f"Capture {info.path} ({info.kind}, {format_frequency(info.fs)} rate)"
-                         + (f", corrected ({', '.join(sorted(fixes.to_json()['applied']))})" if fixes.active else "")
-                         + "; excerpt "
-                         f"{start:g} s + {duration:g} s, heard from {start + SETTLE_S - preroll:g} s after "
-                         f"{SETTLE_S:g} s of receiver settling; {path} path; channel spacing "
-                         f"{format_frequency(spacing)}."),
-            "capture_name": Path(info.path).name,
-        },
-        progress_done=(lambda: progress(total, total)) if progress is not None else None,
-    )
+    return raw, rates, summaries, delays
 
 
-def write_comparison(out_dir, choices, designs, raw, rates, *, plan, tune_hz: float, spacing_hz: float,
-                     header: dict, summaries=None, tone_hz=None, old_files=frozenset(),
-                     designed_delays_s=None, progress_done=None) -> dict:
-    """Align, loudness-match and write a comparison of outputs that are already computed.
-
-    The second half of :func:`compare`, separate so that it can be driven with
-    audio made otherwise (tests, or outputs of a receiver run elsewhere).
-
-    Parameters
-    ----------
-    out_dir : Path
-        Output folder, already checked with :func:`check_out_dir`.
-    choices : list of SpecChoice
-        From :func:`parse_spec_args`.
-    designs : list of ChainDesign
-        One per choice (for the designed figures and the plot).
-    raw : list of ndarray
-        Each chain's mono audio of the same excerpt.
-    rates : list of float
-        Their sample rates (resampled to the highest when they differ).
-    plan : BlindPlan
-        The trials (``plan.n`` may be 0).
-    tune_hz, spacing_hz : float
-        Tune and channel spacing.
-    header : dict
-        ``capture`` (dict), ``excerpt`` (dict), ``path`` (str), ``subtitle`` (str),
-        ``capture_name`` (str), copied into ``compare.json`` and the page.
-    summaries : list of dict, optional
-        Receiver run summaries (a few of their figures are kept).
-    tone_hz : float, optional
-        The station's single test tone (truth sidecar), for SINAD.
-    old_files : set of str
-        Files an earlier comparison in the folder listed (from :func:`check_out_dir`).
-    designed_delays_s : list of float, optional
-        Each chain's designed group delay (``Receiver.delay_s``), kept beside the
-        measured lag as a cross-check.
-    progress_done : callable, optional
-        Called once when everything is written.
-
-    Returns
-    -------
-    dict
-        The contents of ``compare.json``.
-    """
-    out = Path(out_dir)
-    tune = float(tune_hz)
-    spacing = float(spacing_hz)
-    labels = [c.label for c in choices]
-    wav_names = [f"{lab}.wav" for lab in labels]
-    new_files = wav_names + [JSON_FILE, PAGE_FILE] + ([KEY_FILE] if plan.n else [])
-    if summaries is None:
-        summaries = [{} for _ in choices]
-    audio_fs = max(rates)
-    raw = [_resample(x, r, audio_fs) for x, r in zip(raw, rates)]
-    n = min(x.size for x in raw)
-    raw = [x[:n] for x in raw]
-
-    # ---- align, match loudness -----------------------------------------------------------
-    alignment = align(raw, audio_fs, max_lag_s=MAX_LAG_S, expected_s=designed_delays_s, window_s=ALIGN_WINDOW_S)
-    cut = [alignment.cut(i, x) for i, x in enumerate(raw)]
-    # 0.001 dB of margin keeps the peak at or below the limit after rounding to 16 bits (half an LSB)
-    match = match_loudness(cut, audio_fs, peak_limit_dbfs=PEAK_LIMIT_DBFS - 0.001,
-                           names=[f"spec {c.label}" for c in choices])
-    quantized = []
-    for x, g in zip(cut, match.gain_db):
-        y = x * (10.0 ** (g / 20.0))
-        quantized.append(np.clip(np.round(y * 32768.0), -32768, 32767).astype(np.int16))
-    after = [integrated_loudness(q / 32768.0, audio_fs, name=c.label) for q, c in zip(quantized, choices)]
-
-    # ---- figures -------------------------------------------------------------------------
-    spec_rows = []
-    curves = []
-    for i, (c, d) in enumerate(zip(choices, designs)):
-        figs = designed_figures(d, tune, spacing)
-        off, db = selectivity_curve(d, tune)
-        curves.append((c.label, off, db))
-        s = summaries[i]
-        row = {
-            "label": c.label,
-            "chain": c.spec,
-            "name": d.name,
-            "wav": wav_names[i],
-            "loudness_lufs_before": match.before_lufs[i],
-            "loudness_lufs_after": after[i],
-            "gain_db": match.gain_db[i],
-            "peak_dbfs_after": match.peak_dbfs[i] + match.gain_db[i],
-            "delay_ms": alignment.lags[i] / audio_fs * 1e3,
-            "designed_delay_ms": (None if designed_delays_s is None
-                                  else (designed_delays_s[i] - designed_delays_s[0]) * 1e3),
-            **figs,
-            # the chain's, from test tones through it (the programme's content would not follow the chain)
-            "audio_bandwidth_hz": audio_bandwidth_hz(d, tune, path=header["path"], spacing_hz=spacing),
-            "sinad_db": _finite_or_none(sinad_db(cut[i], audio_fs, tone_hz)) if tone_hz else None,
-            # compare takes the receiver's float output and re-levels it, so its clipping count
-            # (of the 16-bit scale, mostly in the start-up left out) does not apply
-            "receive": {k: s.get(k) for k in ("lo_hz", "if_hz", "image_hz", "carrier_dbfs", "agc_gain_db", "checks")
-                        if k in s} | {"warnings": [w for w in s.get("warnings", [])
-                                                   if "clipped at full scale" not in w]},
-        }
-        spec_rows.append(row)
-
-    key_salt = np.random.default_rng([plan.seed, 0x5D]).bytes(16)
-    public_trials = plan.public_trials(labels)
-    result = _plain({
-        "capture": header["capture"],
-        "tune_hz": tune,
-        "excerpt": dict(header["excerpt"], audio_seconds=alignment.length / audio_fs),
-        "path": header["path"],
-        **({"corrections": header["corrections"]} if "corrections" in header else {}),
-        "audio_rate_hz": audio_fs,
-        "spacing_hz": spacing,
-        "audio_bandwidth_definition": AUDIO_BANDWIDTH_DEFINITION,
-        "alignment": {
-            "reference": labels[0],
-            "method": ("integer lag at the peak of the cross-correlation with the first output, searched "
-                       + (f"within {ALIGN_WINDOW_S * 1e3:g} ms of the designed group-delay difference"
-                          if designed_delays_s is not None else f"within {MAX_LAG_S * 1e3:g} ms")),
-        },
-        "loudness": {
-            "standard": "ITU-R BS.1770 integrated loudness (pyloudnorm)",
-            "target_lufs": match.target_lufs,
-            "peak_limit_dbfs": PEAK_LIMIT_DBFS,
-            "limited_by": labels[match.limiting],
-            "rule": "target = min over specs of (loudness + peak limit - sample peak)",
-        },
-        "specs": spec_rows,
-        "trials": public_trials,
-        "key_file": KEY_FILE if plan.n else None,
-        "page": PAGE_FILE,
-    })
-
-    # ---- page ----------------------------------------------------------------------------
-    from .page import render_page
-    from .plot import selectivity_png
-
-    blind_model = None
-    if plan.n:
-        import base64
-
-        blind_model = {
-            "trials": [dict(t, a_index=a, b_index=b) for t, (a, b) in zip(public_trials, plan.pairs)],
-            "key": blind_mod.encode_key(plan.x_is, key_salt),
-            "salt": base64.b64encode(key_salt).decode("ascii"),
-            "chance": blind_mod.chance_table(plan.n),
-        }
-    page = render_page({
-        "title": f"sdrx compare: {header['capture_name']} at {format_frequency(tune)}",
-        "subtitle": [header["subtitle"]],
-        "duration_s": alignment.length / audio_fs,
-        "target_lufs": match.target_lufs,
-        "spacing_hz": spacing,
-        "specs": spec_rows,
-        "plot_png": selectivity_png(curves, tune_hz=tune, spacing_hz=spacing),
-        "blind": blind_model,
-    })
-
-    # ---- write ---------------------------------------------------------------------------
-    files = {MARKER: _json_text({"made_by": "sdrx compare", "files": sorted(new_files)}).encode("utf-8")}
-    for name, q in zip(wav_names, quantized):
-        files[name] = _wav_bytes(q, audio_fs)
-    if plan.n:
-        key = plan.key(labels)
-        key["note"] = "X of each trial; the page shows this only when the key is revealed"
-        files[KEY_FILE] = _json_text(key).encode("utf-8")
-    files[JSON_FILE] = _json_text(result).encode("utf-8")
-    files[PAGE_FILE] = page.encode("utf-8")
-    stale = [out / name for name in sorted(old_files - set(new_files) - {MARKER})
-             if Path(name).name == name and name not in (".", "..") and (out / name).is_file()]
-    write_folder(out, files, head=MARKER, retire=stale)
-    if progress_done is not None:
-        progress_done()
-    return result
+def _header(info, start, duration, preroll, path, fixes, spacing) -> dict:
+    """What ``compare.json`` and the page say about the capture, the excerpt and the run."""
+    return {
+        "capture": info.to_json(),
+        "excerpt": {"start_s": start, "duration_s": duration, "settle_s": SETTLE_S,
+                    "heard_from_s": round(start + SETTLE_S - preroll, 9)},
+        "path": path,
+        "corrections": fixes.to_json(),
+        "subtitle": (f"Capture {info.path} ({info.kind}, {format_frequency(info.fs)} rate)"
+                     + (f", corrected ({', '.join(sorted(fixes.to_json()['applied']))})" if fixes.active else "")
+                     + "; excerpt "
+                     f"{start:g} s + {duration:g} s, heard from {start + SETTLE_S - preroll:g} s after "
+                     f"{SETTLE_S:g} s of receiver settling; {path} path; channel spacing "
+                     f"{format_frequency(spacing)}."),
+        "capture_name": Path(info.path).name,
+    }

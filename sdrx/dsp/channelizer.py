@@ -27,6 +27,7 @@ import scipy.fft as sfft
 from scipy.signal.windows import tukey
 
 from ..errors import ParameterError
+from ..units import format_frequency
 
 __all__ = ["ChannelPlan", "plan_channelizer", "ChannelSpec", "Channelizer", "passband_window"]
 
@@ -92,11 +93,11 @@ def plan_channelizer(fs: float, fs_ch: float, *, min_taps_per_ratio: int = 32) -
     (12800, 512, 1600, 448, 32)
     """
     if fs_ch > fs:
-        raise ParameterError(f"channel rate {fs_ch:g} Hz exceeds the input rate {fs:g} Hz")
+        raise ParameterError(f"channel rate {format_frequency(fs_ch)} exceeds the input rate {format_frequency(fs)}")
     ratio = (Fraction(fs).limit_denominator(1000) / Fraction(fs_ch).limit_denominator(1000)).limit_denominator(4096)
     p, q = ratio.numerator, ratio.denominator
     if q > 512:
-        raise ParameterError(f"sample rate {fs:g} Hz has no small ratio to the channel rate {fs_ch:g} Hz")
+        raise ParameterError(f"sample rate {format_frequency(fs)} has no small ratio to the channel rate {format_frequency(fs_ch)}")
     # P = 2R·m must be an integer: m a multiple of q / gcd(q, 2)
     step = q // math.gcd(q, 2)
     m = step * math.ceil(min_taps_per_ratio / step)

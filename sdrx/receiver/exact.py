@@ -118,7 +118,7 @@ def resolve_if_rate(design, plan, info, tune_hz: float, if_rate_hz=None) -> floa
             auto = choose_if_rate(info.fs, hi_band, f_lo, plan.fs_ch)
             raise ParameterError(
                 f"--if-rate {fs_if:.10g}: not a usable IF sample rate for the capture rate {format_frequency(info.fs)} "
-                f"(use a multiple of {info.fs / 512:g} Hz, such as the automatic {auto:.10g})"
+                f"(use a multiple of {format_frequency(info.fs / 512)}, such as the automatic {auto:.10g})"
             )
     _check_if_rate(fs_if, info.fs, if_rate_hz is None)
     return fs_if
@@ -148,7 +148,7 @@ class _RfSynthesizer:
         while n_s < 4 * overlap:
             n_s *= 2
         if (U * n_s).denominator != 1 or int(U * n_s) % 2:
-            raise ParameterError(f"IF sample rate {fs_if:g} Hz is not a usable multiple of the capture rate {fs:g} Hz")
+            raise ParameterError(f"IF sample rate {format_frequency(fs_if)} is not a usable multiple of the capture rate {format_frequency(fs)}")
         self.U = U
         self.n_s, self.p_s = n_s, overlap
         self.l_s = n_s - overlap
@@ -156,7 +156,7 @@ class _RfSynthesizer:
         self.p_o = int(U * overlap)
         self.l_o = self.n_o - self.p_o
         if (U * overlap).denominator != 1 or (U * overlap / 2).denominator != 1:
-            raise ParameterError(f"IF sample rate {fs_if:g} Hz is not a usable multiple of the capture rate {fs:g} Hz")
+            raise ParameterError(f"IF sample rate {format_frequency(fs_if)} is not a usable multiple of the capture rate {format_frequency(fs)}")
         self.fs, self.fs_if = fs, fs_if
         df = fs / n_s
         if kind == "iq":

@@ -32,6 +32,7 @@ import numpy as np
 from scipy import signal
 
 from ..errors import ParameterError
+from ..units import format_frequency
 from ._keys import check_keys, get_choice, get_frequency, get_number, get_seconds
 from ._nco import phase_cycles, phase_step
 from .source import Normalised, ProgramSource, broadcast_sos
@@ -245,7 +246,7 @@ def make_program(spec, fs: float, seed: int) -> ProgramSource:
     fs = float(fs)
     if not fs > 2.5 * spec.bandwidth_hz:
         raise ParameterError(
-            f"program ({spec.kind}): sample rate {fs:g} Hz is too low for {spec.bandwidth_hz:g} Hz of audio "
+            f"program ({spec.kind}): sample rate {format_frequency(fs)} is too low for {spec.bandwidth_hz:g} Hz of audio "
             f"(needs more than {2.5 * spec.bandwidth_hz:g} Hz)"
         )
     p = dict(spec.params)

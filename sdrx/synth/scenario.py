@@ -257,7 +257,7 @@ def _check_samples(seconds, fs, where):
     if seconds > MAX_SECONDS:
         raise ParameterError(f"{where}: {seconds:g} s is longer than {MAX_SECONDS:g} s")
     if int(round(seconds * fs)) < 1:
-        raise ParameterError(f"{where}: {seconds:g} s holds no sample at {fs:g} Hz")
+        raise ParameterError(f"{where}: {seconds:g} s holds no sample at {format_frequency(fs)}")
 
 
 def parse_scenario(data: dict, *, name: str = "scenario", base_dir=None, path=None) -> Scenario:
