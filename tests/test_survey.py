@@ -183,7 +183,7 @@ def test_bad_spacing_and_short_capture(tmp_path, rng):
     r = write_iq(tmp_path / "b.sigmf-meta", complex_noise(1000, -30, rng), 1.2e6, 1e6)
     with pytest.raises(ParameterError, match="--spacing: must be positive"):
         survey(r, spacing_hz=0)
-    with pytest.raises(ParameterError, match="--spacing 1e.06: must be well below"):
+    with pytest.raises(ParameterError, match="--spacing 1 MHz: must be well below"):
         survey(r, spacing_hz="1M")
     with pytest.raises(CaptureError, match="too short to survey"):
         survey(r, spacing_hz="10k")

@@ -23,6 +23,7 @@ import math
 import numpy as np
 
 from ..errors import ParameterError
+from ..units import format_frequency
 
 __all__ = [
     "KINDS",
@@ -352,7 +353,7 @@ def q_for_rejection(f0_hz, offset_hz, rejection_db, stages=1, kind="single"):
     r = _positive(rejection_db, "rejection")
     n = _stages(stages)
     if d >= f0:
-        raise ParameterError(f"offset: {d:g} Hz must be below the centre frequency {f0:g} Hz")
+        raise ParameterError(f"offset: {format_frequency(d)} must be below the centre frequency {format_frequency(f0)}")
     rho = abs(detuning(f0 + d, f0))
     return _x_at(r / n, _kind(kind)) / rho
 

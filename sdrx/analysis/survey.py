@@ -21,7 +21,7 @@ from scipy import stats
 
 from ..errors import CaptureError, ParameterError
 from ..limits import MAX_SPACING_HZ, MAX_SURVEY_BINS, MIN_SPACING_HZ, check_range
-from ..units import parse_frequency
+from ..units import format_frequency, parse_frequency
 
 __all__ = ["Carrier", "Survey", "BandStatistics", "GridFit", "band_statistics", "survey", "survey_statistics",
            "survey_carriers", "noise_floor", "line_offset", "grid_fit", "DEFAULT_THRESHOLD_DB",
@@ -206,7 +206,8 @@ def _check_spacing(info, spacing_hz) -> float:
     check_range(spacing, "--spacing", MIN_SPACING_HZ, MAX_SPACING_HZ, unit="Hz")
     if spacing >= info.fs / 2:
         raise ParameterError(
-            f"--spacing {spacing:g}: must be well below the capture's bandwidth (rate {info.fs:g} Hz)"
+            f"--spacing {format_frequency(spacing)}: must be well below the capture's bandwidth "
+            f"(rate {format_frequency(info.fs)})"
         )
     return spacing
 
@@ -265,11 +266,12 @@ def _survey_nfft(info, spacing: float, count: int) -> int:
     nfft = _choose_nfft(info.fs, spacing, count)
     if nfft > MAX_SURVEY_BINS:
         raise ParameterError(
-            f"--spacing {spacing:g}: resolving {spacing:g} Hz channels at the capture rate {info.fs:g} Hz needs a "
+            f"--spacing {format_frequency(spacing)}: resolving {format_frequency(spacing)} channels at the capture rate "
+            f"{format_frequency(info.fs)} needs a "
             f"{nfft}-point spectrum; at most {MAX_SURVEY_BINS} (use a wider spacing)")
     if count < nfft:
         raise CaptureError(
-            f"{info.path}: excerpt of {count} samples is too short to survey {spacing:g} Hz channels "
+            f"{info.path}: excerpt of {count} samples is too short to survey {format_frequency(spacing)} channels "
             f"(needs at least {nfft})"
         )
     return nfft

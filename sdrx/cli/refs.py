@@ -76,7 +76,7 @@ def verify(cases, store, names, junit, failures, force, quiet):
     One line per case: PASS/FAIL, the figures and their limits. Exit status
     0 when all pass, 1 when any fails, 2 on bad input. Example:
 
-        sdrx refs verify cases.toml --store refs --junit out/refs.xml
+        sdrx refs verify cases.toml --store refs --junit demo_out/refs.xml --force
     """
     from ..refs.verify import verify_cases
 
