@@ -37,6 +37,7 @@ from typing import Sequence
 import numpy as np
 
 from ..dsp.channelbank import ChannelBank
+from .monitor import feed_spectra
 from .receiver import Receiver
 
 __all__ = ["MultiReceiver", "StationReceiver", "BACK_END_THREADS"]
@@ -52,16 +53,53 @@ class _BankedFront:
     tail the bank computed for this station.
     """
 
-    def __init__(self, front):
+    def __init__(self, front, monitor):
         self.front = front
+        self.monitor = monitor          # the front end's on_extra is this monitor's feed
         self.tail = np.zeros(0, complex)
 
     def combine(self, outs) -> np.ndarray:
         """The station's channels (its own, then its monitor's) -> IF output, as its front end would."""
         return self.front._split(outs)
 
+    def mix(self, outs) -> tuple:
+        """As :meth:`combine` up to the IF stages' input: (the mixer's output, the monitor's
+        (spectrum, samples) pairs to feed with :func:`~sdrx.receiver.monitor.feed_spectra`)."""
+        fe = self.front
+        pairs = self.monitor.take(outs[fe._n_own:]) if len(outs) > fe._n_own else []
+        return fe._mix(outs[:fe._n_own]), pairs
+
     def flush(self) -> np.ndarray:
         return self.tail
+
+
+def if_stages_together(fronts, us) -> list:
+    """Every station's IF stages on its mixer output ``us[i]``, as each ``fronts[i]._if_stages`` would.
+
+    Stations whose stages share one design (the same second-order sections: the same chain, at the
+    same channel rate, whatever the tuning) and whose inputs are equally long run as one 2-D
+    ``scipy.signal.sosfilt`` over a stations × samples array, each row with its own state: the same
+    recursion on each row, so the same samples, in one call instead of one per station.
+    """
+    from scipy import signal
+
+    out = list(us)
+    alike: dict = {}
+    for i, (fe, u) in enumerate(zip(fronts, us)):
+        if len(u):
+            alike.setdefault((fe.sos.shape, fe.sos.tobytes(), len(u)), []).append(i)
+    for members in alike.values():
+        if len(members) == 1:
+            i = members[0]
+            out[i] = fronts[i]._if_stages(us[i])
+            continue
+        x = np.stack([us[i] for i in members])
+        zi = np.stack([fronts[i].zi for i in members], axis=1)        # (sections, stations, 2)
+        y, zf = signal.sosfilt(fronts[members[0]].sos, x, axis=-1, zi=zi)
+        for k, i in enumerate(members):
+            fronts[i].zi = zf[:, k, :].copy()
+            out[i] = fronts[i]._delay(y[k])
+    return out
 
 
 class StationReceiver(Receiver):
@@ -75,7 +113,7 @@ class StationReceiver(Receiver):
 
     def __init__(self, design, info, tune_hz: float, first_sample: int = 0):
         super().__init__(design, info, tune_hz, path="fast", first_sample=first_sample, thermal_noise=False)
-        self.banked = _BankedFront(self.front)
+        self.banked = _BankedFront(self.front, self.monitor)
         self.front = self.banked
         self._started = True          # the MultiReceiver runs the pre-roll for every station
         self.blanker = None           # and the blanker, once on the capture (MultiReceiver.blanker)
@@ -114,7 +152,9 @@ class _Group:
 
     def front(self, block) -> list:
         y = self.bank.process(block)
-        return [rx.banked.combine(self._own(rx, [y[r] for r in rows])) for rx, rows in zip(self.members, self.rows)]
+        mixed = [rx.banked.mix(self._own(rx, [y[r] for r in rows])) for rx, rows in zip(self.members, self.rows)]
+        feed_spectra([pair for _, pairs in mixed for pair in pairs])     # every station's monitor at once
+        return if_stages_together([rx.banked.front for rx in self.members], [u for u, _ in mixed])
 
     @staticmethod
     def _own(rx, outs) -> list:
