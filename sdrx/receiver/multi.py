@@ -141,11 +141,15 @@ class _Group:
     def __init__(self, members, info, first_sample, preroll_n):
         self.members = members                       # indices into MultiReceiver.stations
         self.rows = []                               # each member's rows in the bank
-        tables = []
+        tables, seen = [], {}
         for rx in members:
-            fe = rx.banked.front
-            self.rows.append(list(range(len(tables), len(tables) + len(fe.channelizer.tables))))
-            tables.extend(fe.channelizer.tables)
+            # a channel two stations both need (one's image monitor at the other's tune) is cut once
+            rows = []
+            for t in rx.banked.front.channelizer.tables:
+                rows.append(seen.setdefault(_table_key(t), len(tables)))
+                if rows[-1] == len(tables):
+                    tables.append(t)
+            self.rows.append(rows)
         first = members[0].banked.front
         self.bank = ChannelBank(first.plan, info.kind == "iq", tables, first_sample=first_sample - preroll_n,
                                 dtype=first.channelizer.dtype)
@@ -176,6 +180,11 @@ class _Group:
             rest, fe._held = fe._held, np.zeros(0, complex)   # a long chain's delay line, as FastFrontEnd.flush
             out.append(np.concatenate(parts + [rest]))
         return out
+
+
+def _table_key(t) -> tuple:
+    """Channels with equal keys have equal tables, so equal outputs: the bank computes them once."""
+    return t.k_c, t.eps, t.keep0, t.idx.tobytes(), t.H.tobytes(), t.col_phasor.tobytes()
 
 
 class MultiReceiver:
