@@ -7,9 +7,13 @@ detector, audio) and statistics are the receiver's own. What is shared is
 the expensive front: the capture is read once, and one
 :class:`~sdrx.dsp.channelbank.ChannelBank` per channel rate cuts every
 station's wanted and image channels from the same FFT of each input
-segment, with array operations over all channels at once. Each station's
-channels are then combined and filtered by its IF stages exactly as its own
-front end would (``FastFrontEnd._combine``).
+segment, with array operations over all channels at once (a channel two
+stations both need is cut once). Each station's channels are then combined
+exactly as its own front end would (``FastFrontEnd._mix``), and the IF
+stages of all stations that share a chain run as one 2-D filter over a
+stations × samples array (:func:`if_stages_together`), as do the monitors'
+spectra (:func:`~sdrx.receiver.monitor.feed_spectra`): the same operations
+per station, so the same samples as one station at a time.
 
 The clean start (:mod:`sdrx.receiver.preroll`) is shared too: the bank runs
 one pre-roll, the carriers found near *every* station's channels continued
@@ -23,10 +27,13 @@ receive`` of that station with the same chain to float rounding (tested:
 more than 100 dB below the signal; a single station alone is identical).
 
 Where the work goes, per station (measured in ``make bench``): the
-channelizer's share (two channels, wanted and image), the IF stages (a
-complex IIR per station), and the back end (AGC, detector, audio filters,
-resampler) run once per station by :meth:`MultiReceiver._back_ends`. That
-method is the seam where a back end vectorised across stations can slot in.
+channelizer's share (up to four channels: wanted, image, and the monitor's
+flat channels at the tune and the image), the monitor's spectra, the IF
+stages, and the back end (AGC, detector, audio filters, resampler), which
+still runs once per station by :meth:`MultiReceiver._back_ends`. That
+method is the seam where a back end vectorised across stations can slot in
+(the AGC's control loop, one Python step per 64 channel samples, is the
+largest part of it).
 """
 
 from __future__ import annotations
