@@ -128,7 +128,7 @@ def _pick_stations(cap: _Capture, freqs, choice, designs, min_level) -> None:
                                      f"({format_frequency(lo)} to {format_frequency(hi)})")
             spec = choice.spec_for(f)
             try:
-                Receiver(designs[spec], cap.info, f)
+                Receiver.check_station(designs[spec], cap.info, f)
             except ParameterError as exc:
                 raise ParameterError(f"--stations {station_name(f)} ({cap.arg}): {exc}") from None
             cap.stations.append((f, spec))
@@ -140,7 +140,7 @@ def _pick_stations(cap: _Capture, freqs, choice, designs, min_level) -> None:
             continue
         spec = choice.spec_for(c.freq_hz)
         try:
-            Receiver(designs[spec], cap.info, c.freq_hz)
+            Receiver.check_station(designs[spec], cap.info, c.freq_hz)
         except ParameterError as exc:
             cap.skipped.append({"freq_hz": c.freq_hz, "level_dbfs": round(c.level_dbfs, 2), "reason": str(exc)})
             continue

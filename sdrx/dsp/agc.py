@@ -195,15 +195,20 @@ class Agc:
         a_att, a_rel, hang = self._a_att, self._a_rel, self._hang
         gmin, gmax = sp.min_gain_db, sp.max_gain_db
         log10 = math.log10
+        step, stats_from, stats_to = self.step, self._stats_from, self._stats_to
+        seen_lo, seen_hi = self.gain_min_db, self.gain_max_db
+        ivl_start, ivl_len = self._ivl_start, self._ivl_len
         starts, ends, lstarts, lends = [], [], [], []
+        last_db, last_lin = None, 0.0        # the previous interval's end gain (the next one's start)
         for m in levels:
             prev, g = st.prev_gain_db, st.gain_db
-            self._ivl_start += self._ivl_len      # the next interval starts here
-            self._ivl_len = self.step
+            ivl_start += ivl_len                  # the next interval starts here
+            ivl_len = step
             starts.append(prev)
             ends.append(g)
-            lstarts.append(10.0 ** (prev / 20.0))
-            lends.append(10.0 ** (g / 20.0))
+            lstarts.append(last_lin if prev == last_db else 10.0 ** (prev / 20.0))
+            last_db, last_lin = g, 10.0 ** (g / 20.0)
+            lends.append(last_lin)
             if st.frozen_left:
                 st.frozen_left -= 1
                 st.frozen_levels = (st.frozen_levels + [m])[-self._settle_n:]
@@ -212,36 +217,35 @@ class Agc:
                     # the audio filters settle from; a ramp would show the loop a gain it never had)
                     self._settle(math.fsum(st.frozen_levels) / len(st.frozen_levels))
                 st.prev_gain_db = st.gain_db
-                self._note_next()
-                continue
-            e = ref - (20.0 * log10(m if m > 1e-15 else 1e-15) + 0.5 * (prev + g))
-            ng = g
-            if e < 0:
-                ng += e * a_att
-                st.hang_left = hang
-            elif hang and e <= HANG_MARGIN_DB:
-                st.hang_left = hang          # level about right: the gain holds, the timer restarts
-            elif st.hang_left > 0:
-                st.hang_left -= 1
             else:
-                ng += e * a_rel
-            if ng < gmin:
-                ng = gmin
-            elif ng > gmax:
-                ng = gmax
-            st.prev_gain_db, st.gain_db = g, ng
-            self._note_next()
+                e = ref - (20.0 * log10(m if m > 1e-15 else 1e-15) + 0.5 * (prev + g))
+                ng = g
+                if e < 0:
+                    ng += e * a_att
+                    st.hang_left = hang
+                elif hang and e <= HANG_MARGIN_DB:
+                    st.hang_left = hang          # level about right: the gain holds, the timer restarts
+                elif st.hang_left > 0:
+                    st.hang_left -= 1
+                else:
+                    ng += e * a_rel
+                if ng < gmin:
+                    ng = gmin
+                elif ng > gmax:
+                    ng = gmax
+                st.prev_gain_db, st.gain_db = g, ng
+            # the gain range widens by the ramp of the interval that starts now, unless it lies in
+            # the samples left out (the bookkeeping is per interval: the same for any split)
+            if stats_from < ivl_start + step and ivl_start < stats_to:
+                seen_lo = min(seen_lo, st.prev_gain_db, st.gain_db)
+                seen_hi = max(seen_hi, st.prev_gain_db, st.gain_db)
+        self._ivl_start, self._ivl_len = ivl_start, ivl_len
+        self.gain_min_db, self.gain_max_db = seen_lo, seen_hi
         return starts, ends, lstarts, lends
 
     def _note(self, a: float, b: float) -> None:
         self.gain_min_db = min(self.gain_min_db, a, b)
         self.gain_max_db = max(self.gain_max_db, a, b)
-
-    def _note_next(self) -> None:
-        """Widen the gain range by the ramp of the interval that starts now, unless it lies in the
-        samples left out (the bookkeeping is per interval: the same for any split)."""
-        if self._stats_from < self._ivl_start + self.step and self._ivl_start < self._stats_to:
-            self._note(self.state.prev_gain_db, self.state.gain_db)
 
     def end_stats(self, n: int) -> None:
         """Leave samples from the ``n``-th on (counted from the start) out of the gain range."""

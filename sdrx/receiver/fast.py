@@ -130,6 +130,10 @@ class FastFrontEnd:
         self._drop = plan.delay_out  # FIR centring delay, removed once
 
     def _combine(self, outs):
+        return self._if_stages(self._mix(outs))
+
+    def _mix(self, outs):
+        """The mixer: wanted and image channels -> u, the IF stages' input (FIR delay removed once)."""
         u = np.conj(outs[0]) if self.conj_w else outs[0]
         if self.has_image:
             u = u + (np.conj(outs[1]) if self.conj_v else outs[1])
@@ -137,6 +141,9 @@ class FastFrontEnd:
             k = min(self._drop, len(u))
             u = u[k:]
             self._drop -= k
+        return u
+
+    def _if_stages(self, u):
         if len(u) == 0:
             return u
         y, self.zi = signal.sosfilt(self.sos, u, zi=self.zi)

@@ -50,6 +50,7 @@ _FRAME = 4096
 _HOP = 2048
 _BLOCK_FRAMES = 4        # frames averaged before the running minimum (about 0.1 s at 96 kHz)
 _LOBE = 4                # half-width of the window's main lobe, bins (4-term Blackman-Harris)
+_STACK = 16             # spectra fed as one array (bounds the temporaries: a few MB per block)
 _NOISE_QUANTILE = 0.1    # the quietest tenth of the bins near the channel holds only noise
 
 
@@ -83,24 +84,11 @@ class _Spectrum:
         self.blocks = 0
 
     def feed(self, z: np.ndarray) -> None:
-        self._buf = np.concatenate([self._buf, z])
-        n = (len(self._buf) - _FRAME) // _HOP + 1 if len(self._buf) >= _FRAME else 0
-        if n <= 0:
-            return
-        view = np.lib.stride_tricks.sliding_window_view(self._buf[:(n - 1) * _HOP + _FRAME], _FRAME)[::_HOP]
-        p = np.abs(sfft.fftshift(sfft.fft(view * self.win, axis=1), axes=1)) ** 2
-        for row in p:
-            self.sum += row
-            self.frames += 1
-            self._block += row
-            self._block_n += 1
-            if self._block_n == _BLOCK_FRAMES:
-                avg = self._block / _BLOCK_FRAMES
-                self.minimum = avg if self.minimum is None else np.minimum(self.minimum, avg)
-                self.blocks += 1
-                self._block[:] = 0.0
-                self._block_n = 0
-        self._buf = self._buf[n * _HOP:]
+        feed_spectra([(self, z)])
+
+    def _key(self, n_new: int) -> tuple:
+        """Spectra with equal keys are at the same point of their runs: they can be fed as one array."""
+        return len(self._buf), n_new, self.frames, self._block_n, self.blocks, self.minimum is None
 
     @property
     def freqs(self) -> np.ndarray:
@@ -145,6 +133,52 @@ class _Spectrum:
         return per_bin / (float(np.sum(self.win ** 2)) * self.fs)
 
 
+def feed_spectra(pairs) -> None:
+    """Feed each (spectrum, new samples) pair, the spectra at the same point of their runs together.
+
+    Those are stacked into one spectra × frames × frame array: one FFT call for all, and one pass of
+    the running sums and block minima per frame over all of them at once. Every spectrum's values come
+    from the same elementwise operations in the same order as when it is fed alone.
+    """
+    alike: dict = {}
+    for sp, z in pairs:
+        alike.setdefault(sp._key(len(z)), []).append((sp, z))
+    for group in alike.values():
+        for i in range(0, len(group), _STACK):
+            part = group[i:i + _STACK]
+            _feed_alike([sp for sp, _ in part], np.stack([np.concatenate([sp._buf, z]) for sp, z in part]))
+
+
+def _feed_alike(spectra, buf: np.ndarray) -> None:
+    first = spectra[0]
+    n = (buf.shape[1] - _FRAME) // _HOP + 1 if buf.shape[1] >= _FRAME else 0
+    if n > 0:
+        view = np.lib.stride_tricks.sliding_window_view(buf[:, :(n - 1) * _HOP + _FRAME], _FRAME, axis=1)[:, ::_HOP]
+        p = np.abs(sfft.fftshift(sfft.fft(view * first.win, axis=-1), axes=-1)) ** 2     # (spectra, n, frame)
+        total = np.stack([sp.sum for sp in spectra])
+        block = np.stack([sp._block for sp in spectra])
+        minimum = None if first.minimum is None else np.stack([sp.minimum for sp in spectra])
+        frames, block_n, blocks = first.frames, first._block_n, first.blocks
+        for r in range(n):
+            row = p[:, r, :]
+            total += row
+            frames += 1
+            block += row
+            block_n += 1
+            if block_n == _BLOCK_FRAMES:
+                avg = block / _BLOCK_FRAMES
+                minimum = avg if minimum is None else np.minimum(minimum, avg)
+                blocks += 1
+                block[:] = 0.0
+                block_n = 0
+        for k, sp in enumerate(spectra):
+            sp.sum, sp._block = total[k], block[k]
+            sp.minimum = None if minimum is None else minimum[k]
+            sp.frames, sp._block_n, sp.blocks = frames, block_n, blocks
+    for k, sp in enumerate(spectra):
+        sp._buf = buf[k, n * _HOP:] if n > 0 else buf[k]
+
+
 class ChannelMonitor:
     """Carriers and channel noise around the tune and on the image, for the run summary's checks.
 
@@ -187,16 +221,21 @@ class ChannelMonitor:
 
     def feed(self, outs) -> None:
         """The monitor channels' new samples, in the order of :attr:`specs`."""
+        feed_spectra(self.take(outs))
+
+    def take(self, outs) -> list:
+        """The (spectrum, samples) pairs these new monitor-channel samples feed (the skip and the limit
+        applied); for :func:`feed_spectra` over many monitors at once."""
         if not outs or not len(outs[0]):
-            return
+            return []
         n = len(outs[0])
         lo = min(self._skip, n)
         self._skip -= lo
         hi = int(min(n, lo + max(0, self._limit - self._n)))
         self._n += max(0, hi - lo)
-        if hi > lo:
-            for sp, z in zip(self.spectra, outs):
-                sp.feed(np.asarray(z[lo:hi]))
+        if hi <= lo:
+            return []
+        return [(sp, np.asarray(z[lo:hi])) for sp, z in zip(self.spectra, outs)]
 
     # -- the checks ------------------------------------------------------------------------------
     def _h2(self, f_hz: float) -> float:

@@ -7,9 +7,13 @@ detector, audio) and statistics are the receiver's own. What is shared is
 the expensive front: the capture is read once, and one
 :class:`~sdrx.dsp.channelbank.ChannelBank` per channel rate cuts every
 station's wanted and image channels from the same FFT of each input
-segment, with array operations over all channels at once. Each station's
-channels are then combined and filtered by its IF stages exactly as its own
-front end would (``FastFrontEnd._combine``).
+segment, with array operations over all channels at once (a channel two
+stations both need is cut once). Each station's channels are then combined
+exactly as its own front end would (``FastFrontEnd._mix``), and the IF
+stages of all stations that share a chain run as one 2-D filter over a
+stations × samples array (:func:`if_stages_together`), as do the monitors'
+spectra (:func:`~sdrx.receiver.monitor.feed_spectra`): the same operations
+per station, so the same samples as one station at a time.
 
 The clean start (:mod:`sdrx.receiver.preroll`) is shared too: the bank runs
 one pre-roll, the carriers found near *every* station's channels continued
@@ -23,10 +27,13 @@ receive`` of that station with the same chain to float rounding (tested:
 more than 100 dB below the signal; a single station alone is identical).
 
 Where the work goes, per station (measured in ``make bench``): the
-channelizer's share (two channels, wanted and image), the IF stages (a
-complex IIR per station), and the back end (AGC, detector, audio filters,
-resampler) run once per station by :meth:`MultiReceiver._back_ends`. That
-method is the seam where a back end vectorised across stations can slot in.
+channelizer's share (up to four channels: wanted, image, and the monitor's
+flat channels at the tune and the image), the monitor's spectra, the IF
+stages, and the back end (AGC, detector, audio filters, resampler), which
+still runs once per station by :meth:`MultiReceiver._back_ends`. That
+method is the seam where a back end vectorised across stations can slot in
+(the AGC's control loop, one Python step per 64 channel samples, is the
+largest part of it).
 """
 
 from __future__ import annotations
@@ -37,6 +44,7 @@ from typing import Sequence
 import numpy as np
 
 from ..dsp.channelbank import ChannelBank
+from .monitor import feed_spectra
 from .receiver import Receiver
 
 __all__ = ["MultiReceiver", "StationReceiver", "BACK_END_THREADS"]
@@ -52,16 +60,53 @@ class _BankedFront:
     tail the bank computed for this station.
     """
 
-    def __init__(self, front):
+    def __init__(self, front, monitor):
         self.front = front
+        self.monitor = monitor          # the front end's on_extra is this monitor's feed
         self.tail = np.zeros(0, complex)
 
     def combine(self, outs) -> np.ndarray:
         """The station's channels (its own, then its monitor's) -> IF output, as its front end would."""
         return self.front._split(outs)
 
+    def mix(self, outs) -> tuple:
+        """As :meth:`combine` up to the IF stages' input: (the mixer's output, the monitor's
+        (spectrum, samples) pairs to feed with :func:`~sdrx.receiver.monitor.feed_spectra`)."""
+        fe = self.front
+        pairs = self.monitor.take(outs[fe._n_own:]) if len(outs) > fe._n_own else []
+        return fe._mix(outs[:fe._n_own]), pairs
+
     def flush(self) -> np.ndarray:
         return self.tail
+
+
+def if_stages_together(fronts, us) -> list:
+    """Every station's IF stages on its mixer output ``us[i]``, as each ``fronts[i]._if_stages`` would.
+
+    Stations whose stages share one design (the same second-order sections: the same chain, at the
+    same channel rate, whatever the tuning) and whose inputs are equally long run as one 2-D
+    ``scipy.signal.sosfilt`` over a stations × samples array, each row with its own state: the same
+    recursion on each row, so the same samples, in one call instead of one per station.
+    """
+    from scipy import signal
+
+    out = list(us)
+    alike: dict = {}
+    for i, (fe, u) in enumerate(zip(fronts, us)):
+        if len(u):
+            alike.setdefault((fe.sos.shape, fe.sos.tobytes(), len(u)), []).append(i)
+    for members in alike.values():
+        if len(members) == 1:
+            i = members[0]
+            out[i] = fronts[i]._if_stages(us[i])
+            continue
+        x = np.stack([us[i] for i in members])
+        zi = np.stack([fronts[i].zi for i in members], axis=1)        # (sections, stations, 2)
+        y, zf = signal.sosfilt(fronts[members[0]].sos, x, axis=-1, zi=zi)
+        for k, i in enumerate(members):
+            fronts[i].zi = zf[:, k, :].copy()
+            out[i] = fronts[i]._delay(y[k])
+    return out
 
 
 class StationReceiver(Receiver):
@@ -75,7 +120,7 @@ class StationReceiver(Receiver):
 
     def __init__(self, design, info, tune_hz: float, first_sample: int = 0):
         super().__init__(design, info, tune_hz, path="fast", first_sample=first_sample, thermal_noise=False)
-        self.banked = _BankedFront(self.front)
+        self.banked = _BankedFront(self.front, self.monitor)
         self.front = self.banked
         self._started = True          # the MultiReceiver runs the pre-roll for every station
         self.blanker = None           # and the blanker, once on the capture (MultiReceiver.blanker)
@@ -103,18 +148,24 @@ class _Group:
     def __init__(self, members, info, first_sample, preroll_n):
         self.members = members                       # indices into MultiReceiver.stations
         self.rows = []                               # each member's rows in the bank
-        tables = []
+        tables, seen = [], {}
         for rx in members:
-            fe = rx.banked.front
-            self.rows.append(list(range(len(tables), len(tables) + len(fe.channelizer.tables))))
-            tables.extend(fe.channelizer.tables)
+            # a channel two stations both need (one's image monitor at the other's tune) is cut once
+            rows = []
+            for t in rx.banked.front.channelizer.tables:
+                rows.append(seen.setdefault(_table_key(t), len(tables)))
+                if rows[-1] == len(tables):
+                    tables.append(t)
+            self.rows.append(rows)
         first = members[0].banked.front
         self.bank = ChannelBank(first.plan, info.kind == "iq", tables, first_sample=first_sample - preroll_n,
                                 dtype=first.channelizer.dtype)
 
     def front(self, block) -> list:
         y = self.bank.process(block)
-        return [rx.banked.combine(self._own(rx, [y[r] for r in rows])) for rx, rows in zip(self.members, self.rows)]
+        mixed = [rx.banked.mix(self._own(rx, [y[r] for r in rows])) for rx, rows in zip(self.members, self.rows)]
+        feed_spectra([pair for _, pairs in mixed for pair in pairs])     # every station's monitor at once
+        return if_stages_together([rx.banked.front for rx in self.members], [u for u, _ in mixed])
 
     @staticmethod
     def _own(rx, outs) -> list:
@@ -136,6 +187,11 @@ class _Group:
             rest, fe._held = fe._held, np.zeros(0, complex)   # a long chain's delay line, as FastFrontEnd.flush
             out.append(np.concatenate(parts + [rest]))
         return out
+
+
+def _table_key(t) -> tuple:
+    """Channels with equal keys have equal tables, so equal outputs: the bank computes them once."""
+    return t.k_c, t.eps, t.keep0, t.idx.tobytes(), t.H.tobytes(), t.col_phasor.tobytes()
 
 
 class MultiReceiver:

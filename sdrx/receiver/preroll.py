@@ -185,17 +185,33 @@ def carrier_history(carriers, count: int, fs: float, is_complex: bool, near_hz=N
     >>> np.round(h, 3).tolist()
     [(-1-0j), (-0.707-0.707j), -1j, (0.707-0.707j)]
     """
-    out = np.zeros(count, complex)
     n_fade = min(count, int(math.ceil(FADE_S[0] * fs)))
-    fade = _fade_in(n_fade, fs)
-    for c in carriers:
-        if near_hz is None or _inside(c.freq_hz, near_hz):
-            n = np.arange(-count, 0, dtype=np.float64)
-            out += c.amplitude * np.exp(2j * np.pi * c.freq_hz * n / fs)
-        elif n_fade:
-            n = np.arange(-n_fade, 0, dtype=np.float64)
-            out[count - n_fade:] += fade * c.amplitude * np.exp(2j * np.pi * c.freq_hz * n / fs)
+    near = [c for c in carriers if near_hz is None or _inside(c.freq_hz, near_hz)]
+    far = [c for c in carriers if not (near_hz is None or _inside(c.freq_hz, near_hz))]
+    out = _tone_sum(near, count, fs)
+    if far and n_fade:
+        out[count - n_fade:] += _fade_in(n_fade, fs) * _tone_sum(far, n_fade, fs)
     return out if is_complex else out.real.copy()
+
+
+def _tone_sum(carriers, count: int, fs: float, block: int = 1024) -> np.ndarray:
+    """Σ_k a_k·exp(j2π f_k n / fs) for n = −count … −1, every carrier at once.
+
+    The samples are taken in blocks of ``block``: with n = n0 + m,
+    exp(jωn) = exp(jωn0)·exp(jωm), so the whole sum is one matrix product of
+    the (blocks × carriers) start phasors, amplitudes included, by the
+    (carriers × block) phasor table: one pass of complex exponentials over
+    blocks + block columns per carrier instead of ``count``.
+    """
+    if not carriers or count <= 0:
+        return np.zeros(max(count, 0), complex)
+    f = np.array([c.freq_hz for c in carriers], np.float64)
+    a = np.array([c.amplitude for c in carriers], complex)
+    nb = -(-count // block)
+    n0 = -count + block * np.arange(nb, dtype=np.float64)
+    starts = a[None, :] * np.exp(2j * np.pi * np.outer(n0, f) / fs)             # (blocks, carriers)
+    table = np.exp(2j * np.pi * np.outer(f, np.arange(block, dtype=np.float64)) / fs)   # (carriers, block)
+    return (starts @ table).reshape(-1)[:count]
 
 
 def _fade_in(n: int, fs: float) -> np.ndarray:

@@ -42,6 +42,33 @@ def channel_rate(audio_rate_hz: float, fs: float) -> float:
     return float(min(audio_rate_hz * r, fs))
 
 
+def _check_full_scale(frontend, full_scale_dbm) -> None:
+    nf = frontend.noise_figure_db
+    if nf is not None and full_scale_dbm is None:
+        raise ParameterError(
+            f"frontend.noise_figure_db: {nf:g} dB needs the antenna power of full scale to place the "
+            "thermal noise; set frontend.full_scale_dbm in the chain spec or give --full-scale-dbm")
+
+
+def _checked_plan(design, info, tune_hz: float):
+    """The channel plan of a station, after the checks that refuse it (tuning, LO, channel rate)."""
+    lo, hi = info.band_hz
+    name = getattr(info, "path", "capture")
+    if not lo < tune_hz < hi:
+        raise ParameterError(
+            f"--tune {format_frequency(tune_hz)}: outside the capture's band "
+            f"{format_frequency(lo)} to {format_frequency(hi)} ({name})"
+        )
+    if design.lo_hz(tune_hz) <= 0:
+        raise ParameterError(
+            f"--tune {format_frequency(tune_hz)}: with low-side injection and IF {format_frequency(design.if_hz)} "
+            f"the LO would be at {format_frequency(design.lo_hz(tune_hz))}; tune above {format_frequency(design.if_hz)}"
+        )
+    plan = plan_channelizer(info.fs, channel_rate(design.audio.rate_hz, info.fs))
+    _check_channel_holds_audio(plan, design, info)
+    return plan
+
+
 def _check_channel_holds_audio(plan, design, info) -> None:
     """The channel (flat to plan.f_pass_hz) must pass the audio band, else its top is cut silently; and the
     IF must be high enough that its mirror (2·IF away) stays outside the channel."""
@@ -119,21 +146,8 @@ class Receiver:
         self.full_scale_dbm = design.frontend.full_scale_dbm if full_scale_dbm is None else float(full_scale_dbm)
         self.noise = self._thermal_noise(design.frontend, info) if thermal_noise else None
         lo, hi = info.band_hz
-        name = getattr(info, "path", "capture")
-        if not lo < tune_hz < hi:
-            raise ParameterError(
-                f"--tune {format_frequency(tune_hz)}: outside the capture's band "
-                f"{format_frequency(lo)} to {format_frequency(hi)} ({name})"
-            )
-        if design.lo_hz(tune_hz) <= 0:
-            raise ParameterError(
-                f"--tune {format_frequency(tune_hz)}: with low-side injection and IF {format_frequency(design.if_hz)} "
-                f"the LO would be at {format_frequency(design.lo_hz(tune_hz))}; tune above {format_frequency(design.if_hz)}"
-            )
-        fs_ch = channel_rate(design.audio.rate_hz, info.fs)
-        self.plan = plan_channelizer(info.fs, fs_ch)
+        self.plan = _checked_plan(design, info, tune_hz)
         self.fs_ch = self.plan.fs_ch
-        _check_channel_holds_audio(self.plan, design, info)
         edge = design.audio.lowpass_hz
         if tune_hz - edge < lo or tune_hz + edge > hi:
             self.warnings.append(
@@ -236,6 +250,16 @@ class Receiver:
             out.append(self._feed(head))
         return np.concatenate(out)
 
+    @staticmethod
+    def check_station(design, info, tune_hz: float) -> None:
+        """Raise the ParameterError a (fast-path) Receiver of this station would raise, if any.
+
+        The same checks as the constructor (the front end's noise, the tuning, the channel rate),
+        without building the receiver's channel tables and filters: for choosing stations cheaply.
+        """
+        _check_full_scale(design.frontend, design.frontend.full_scale_dbm)
+        _checked_plan(design, info, tune_hz)
+
     def _thermal_noise(self, frontend, info):
         """The front end's noise source, or None when the spec gives no noise figure."""
         from ..dsp.thermal import ThermalNoise, thermal_density_dbfs_per_hz
@@ -243,10 +267,7 @@ class Receiver:
         nf = frontend.noise_figure_db
         if nf is None:
             return None
-        if self.full_scale_dbm is None:
-            raise ParameterError(
-                f"frontend.noise_figure_db: {nf:g} dB needs the antenna power of full scale to place the "
-                "thermal noise; set frontend.full_scale_dbm in the chain spec or give --full-scale-dbm")
+        _check_full_scale(frontend, self.full_scale_dbm)
         density = thermal_density_dbfs_per_hz(nf, self.full_scale_dbm)
         return ThermalNoise(density, info.fs, info.kind, frontend.seed)
 
