@@ -88,11 +88,14 @@ def run_page_checks(page, folder, key, second_label):
     page.click("#play")
     st = _wait(page, lambda st: (not st[0]["paused"]) and st[0]["t"] > 0.6, what="A playing")
     assert st[1]["paused"]
+    t_click = time.monotonic()
     page.click("#src-1")
     st = _state(page)
+    since_click_s = time.monotonic() - t_click
     assert st[0]["paused"] and not st[1]["paused"]
-    # B starts where A was: the switch does not restart the excerpt
-    assert st[1]["t"] == pytest.approx(st[0]["t"], abs=0.05)
+    # B starts where A was: the switch does not restart the excerpt; B has played on for at most the
+    # wall time since the click (on a loaded machine that is more than the 50 ms of slack)
+    assert st[0]["t"] - 0.05 <= st[1]["t"] <= st[0]["t"] + since_click_s + 0.05
     assert st[1]["t"] > 0.6
     t_switch = st[1]["t"]
     st = _wait(page, lambda st: st[1]["t"] > t_switch + 0.2, what="B advancing")
