@@ -99,3 +99,15 @@ def test_noise_figure_option_moves_the_sensitivity(tmp_path, capsys):
     want = 20 + 10 * np.log10(2 * s["noise_bandwidth_hz"]) - 20 * np.log10(0.3) - 174.0 + 20.0 + s["image_noise_db"]
     assert s["predicted_dbm"] == pytest.approx(want, abs=0.05)
     assert s["level_dbm"] == pytest.approx(want, abs=0.5)
+
+
+def test_full_scale_option_is_the_sensitivity_full_scale(tmp_path, capsys):
+    out = tmp_path / "rep"
+    rc, so, err = run(["report", "narrow", "--tune", "1M", "--points", "7", "--full-scale-dbm", "-30", "--quiet",
+                       "-o", str(out)], capsys)
+    assert rc == 0, err
+    s = json.loads((out / "report.json").read_text())["measured"]["sensitivity"]
+    assert s["full_scale_dbm"] == -30.0 and s["full_scale_from"] == "--full-scale-dbm"
+    # the runs are placed by it (test levels in dBFS = dBm - full scale) but the S/N is not: still the
+    # envelope-detector prediction S/N = m²(C/N0)/(2W), within the 1.5 dB the datasheet allows
+    assert abs(s["level_dbm"] - s["predicted_dbm"]) <= 1.5
