@@ -120,8 +120,6 @@ def log_csv(captures, full_scale_dbm=None) -> str:
     >>> print(log_csv([("night", 0.0, {"1130k": r})], {"1130k": -10.0}).strip().splitlines()[1])
     night,0,-20.94,-22.00,-20.00,-30.94,-32.00,-30.00
     """
-    from ..run import levels_dbm
-
     scales = full_scale_dbm or {}
     labels = []
     for _, _, rows in captures:
@@ -130,9 +128,8 @@ def log_csv(captures, full_scale_dbm=None) -> str:
                 labels.append(k)
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    stats = ("mean", "min", "max")
     w.writerow(["capture", "t_s"] + [f"{k} {c}_{u}" for k in labels
-                                     for u in ("dbfs", "dbm")[:1 + (scales.get(k) is not None)] for c in stats])
+                                     for u in ("dbfs", "dbm")[:1 + (scales.get(k) is not None)] for c in _STATS])
     for name, start_s, rows in captures:
         seconds = sorted({int(i) for r in rows.values() for i in r.index})
         cols = {}
@@ -142,10 +139,20 @@ def log_csv(captures, full_scale_dbm=None) -> str:
         for s in seconds:
             line = [name, f"{start_s + s:.6g}"]
             for k in labels:
-                v = cols.get(k, {}).get(s)
-                dbm = None if v is None else levels_dbm(dict(zip(stats, v)), scales.get(k))
-                width = 3 if scales.get(k) is None else 6
-                line += [""] * width if v is None else [f"{x:.2f}" for x in v] + (
-                    [] if dbm is None else [f"{dbm[c]:.2f}" for c in stats])
+                line += _cells(cols.get(k, {}).get(s), scales.get(k))
             w.writerow(line)
     return buf.getvalue()
+
+
+_STATS = ("mean", "min", "max")
+
+
+def _cells(levels_dbfs, full_scale_dbm) -> list:
+    """One station's cells of a row: mean, min, max in dBFS, then in dBm when the full scale is known."""
+    from ..run import levels_dbm
+
+    width = 3 if full_scale_dbm is None else 6
+    if levels_dbfs is None:
+        return [""] * width
+    dbm = levels_dbm(dict(zip(_STATS, levels_dbfs)), full_scale_dbm)
+    return [f"{x:.2f}" for x in levels_dbfs] + ([] if dbm is None else [f"{dbm[c]:.2f}" for c in _STATS])
