@@ -14,7 +14,7 @@ import math
 from pathlib import Path
 
 from .chain import design_chain
-from .chain.spec import parse_full_scale_dbm
+from .chain.spec import full_scale_override
 from .errors import OutputError, ParameterError
 from .fileio import atomic_path, check_free_space, check_output, same_file
 from .fileset import OutputSet
@@ -22,7 +22,7 @@ from .limits import MAX_IF_RATE_HZ, MAX_RF_HZ, check_range
 from .receiver import PATHS, Receiver
 from .units import parse_frequency
 
-__all__ = ["receive", "Receiver", "run_receiver", "write_json", "json_text", "spec_files"]
+__all__ = ["receive", "Receiver", "run_receiver", "write_json", "json_text", "spec_files", "levels_dbm"]
 
 DEFAULT_BLOCK = 1 << 20
 
@@ -201,7 +201,7 @@ def receive(capture, tune_hz, chain="medium", out=None, *, summary_path=None, pa
     if if_rate is not None and path != "exact":
         raise ParameterError("--if-rate: only the exact path has an IF sample rate (add --path exact)")
     spacing = parse_frequency(spacing_hz, "--spacing")
-    fs_dbm = None if full_scale_dbm is None else parse_full_scale_dbm(full_scale_dbm, "--full-scale-dbm")
+    fs_dbm = full_scale_override(full_scale_dbm)
     rx_kw = dict(path=path, if_rate_hz=if_rate, spacing_hz=spacing, full_scale_dbm=fs_dbm)
     corrections_asked = isinstance(correct, CorrectionPlan) or ppm is not None or bool(parse_correct(correct))
     if corrections_asked:
@@ -274,7 +274,7 @@ def _summary(design, rx, info, tune, path, first, count, out, n_audio, float_out
                    "samples": n_audio, "format": "float32" if float_output else "pcm16"},
         "carrier_dbfs": _round(st["carrier_dbfs"]),
         "full_scale_dbm": rx.full_scale_dbm,
-        "carrier_dbm": _dbm(st["carrier_dbfs"], rx.full_scale_dbm),
+        "carrier_dbm": levels_dbm(st["carrier_dbfs"], rx.full_scale_dbm),
         "thermal_noise": _noise_summary(rx),
         "agc_gain_db": _round(st["agc_gain_db"]),
         "clipped_samples": int(clipped),
@@ -292,8 +292,14 @@ def _summary(design, rx, info, tune, path, first, count, out, n_audio, float_out
     return summary
 
 
-def _dbm(levels_dbfs: dict, full_scale_dbm):
-    """Carrier levels in dBm (dBFS + the full scale's dBm), or None when the scale is unknown."""
+def levels_dbm(levels_dbfs: dict, full_scale_dbm):
+    """Levels in dBm (dBFS + the full scale's dBm, rounded to 0.1 mdB), or None when the scale is unknown.
+
+    Examples
+    --------
+    >>> levels_dbm({"mean": -20.0, "min": None}, -10.0), levels_dbm({"mean": -20.0}, None)
+    ({'mean': -30.0, 'min': None}, None)
+    """
     if full_scale_dbm is None:
         return None
     return _round({k: None if v is None else v + full_scale_dbm for k, v in levels_dbfs.items()})

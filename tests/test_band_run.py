@@ -308,3 +308,48 @@ def test_corrections_apply_ahead_of_every_station(tmp_path):
     b, _ = sf.read(tmp_path / "r.wav", dtype="float64")
     assert len(a) == len(b)
     assert 10 * np.log10(np.sum((a - b) ** 2) / np.sum(b ** 2)) < -100.0
+
+
+def test_full_scale_dbm_travels_in_the_job_and_gives_dbm(band_capture, tmp_path, monkeypatch):
+    """--full-scale-dbm: every station runs with it (its thermal noise placed by it, as receive places it), the
+    segment jobs carry it to the workers, and band.json and log.csv give dBm = dBFS + the full scale."""
+    import sdrx.band.run as band_run_mod
+
+    nf = tmp_path / "noisy.toml"
+    nf.write_text("[frontend]\nnoise_figure_db = 10\n")
+    with pytest.raises(Exception, match="noise_figure_db: 10 dB needs the antenna power of full scale"):
+        band([band_capture], tmp_path / "refused", stations="1010k", chains=[str(nf)], duration_s=2)
+    jobs = []
+    real_run = band_run_mod._run
+
+    def recording_run(fn, js, *a, **kw):
+        jobs.extend(js)
+        return real_run(fn, js, *a, **kw)
+
+    monkeypatch.setattr(band_run_mod, "_run", recording_run)
+    out = tmp_path / "fs"
+    s = band([band_capture], out, stations="1010k", chains=[str(nf)], duration_s=2, full_scale_dbm="-10 dBm")
+    seg_jobs = [j for j in jobs if isinstance(j, SegmentJob)]
+    assert seg_jobs and all(j.full_scale_dbm == -10.0 for j in seg_jobs)
+    (st,) = s["captures"][0]["stations"]
+    assert st["full_scale_dbm"] == -10.0
+    for k in ("mean", "min", "max"):
+        assert st["carrier_dbm"][k] == pytest.approx(st["carrier_dbfs"][k] - 10.0, abs=1e-9)
+    assert st["carrier_dbm"]["mean"] == pytest.approx(-30.0, abs=0.3)   # made at -20 dBFS (the truth)
+    assert json.loads((out / "band.json").read_text())["captures"][0]["stations"][0]["carrier_dbm"] == st["carrier_dbm"]
+    rows = list(csv.DictReader(io.StringIO((out / "log.csv").read_text())))
+    assert len(rows) == 2
+    for r in rows:
+        for k in ("mean", "min", "max"):
+            assert float(r[f"1010k {k}_dbm"]) == pytest.approx(float(r[f"1010k {k}_dbfs"]) - 10.0, abs=0.0101)
+    # the station's audio, thermal noise and all, is that of receive with the same option
+    a, _ = sf.read(out / "1010k.wav", dtype="int16")
+    receive(band_capture, 1010e3, nf, tmp_path / "r.wav", duration_s=2, full_scale_dbm=-10)
+    b, _ = sf.read(tmp_path / "r.wav", dtype="int16")
+    np.testing.assert_array_equal(a, b)
+
+
+def test_log_has_no_dbm_columns_without_a_full_scale(band_run):
+    out, _ = band_run
+    head = (out / "log.csv").read_text().splitlines()[0]
+    assert "dbfs" in head and "dbm" not in head

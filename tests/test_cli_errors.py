@@ -97,3 +97,29 @@ def test_summary_may_not_overwrite_the_chain_spec(capture, tmp_path, capsys):
     one_line(rc, err, "is one of the inputs")
     assert spec.read_text() == 'name = "mine"\n'
     assert sorted(p.name for p in tmp_path.iterdir()) == ["my.toml"]
+
+
+@pytest.mark.parametrize("value, match", [
+    ("hot", "--full-scale-dbm: cannot read 'hot' as a power in dBm"),
+    ("90", "--full-scale-dbm: '90' must be a power from -150 to 60 dBm"),
+])
+@pytest.mark.parametrize("args", [
+    ["receive", "{cap}", "--tune", "1M", "-o", "{out}"],
+    ["compare", "{cap}", "--tune", "1M", "wide", "narrow", "-o", "{dir}/c"],
+    ["band", "{cap}", "-o", "{dir}/b"],
+    ["report", "medium", "--tune", "1M", "--capture", "{cap}", "--no-measure", "-o", "{dir}/r"],
+    ["report", "medium", "--tune", "1M", "-o", "{dir}/r"],
+])
+def test_bad_full_scale_is_one_line_on_every_command(capture, tmp_path, capsys, args, value, match):
+    """--full-scale-dbm is checked alike by every command that runs a chain on a capture, before any work."""
+    fill = {"cap": capture, "out": tmp_path / "o.wav", "dir": tmp_path}
+    rc, out, err = run([a.format(**fill) for a in args] + ["--quiet", "--full-scale-dbm", value], capsys)
+    assert one_line(rc, err, match) == f"sdrx: error: {match}"
+    assert sorted(p.name for p in tmp_path.iterdir()) == []
+
+
+def test_report_full_scale_needs_a_capture_or_the_measured_figures(tmp_path, capsys):
+    rc, out, err = run(["report", "medium", "--tune", "1M", "--no-measure", "--full-scale-dbm", "-10",
+                        "-o", str(tmp_path / "r")], capsys)
+    one_line(rc, err, "--full-scale-dbm -10: only applies with --capture CAPTURE or to the measured figures")
+    assert sorted(p.name for p in tmp_path.iterdir()) == []

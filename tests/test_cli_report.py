@@ -88,14 +88,18 @@ def test_bad_noise_figure_one_line_exit_2(args, match, tmp_path, capsys):
     assert not out.exists()
 
 
-def test_noise_figure_option_moves_the_sensitivity(tmp_path, capsys):
+def test_noise_figure_and_full_scale_options_set_the_sensitivity_bench(tmp_path, capsys):
     out = tmp_path / "rep"
     rc, so, err = run(["report", "narrow", "--tune", "1M", "--points", "7", "--noise-figure", "20", "--quiet",
-                       "-o", str(out)], capsys)
+                       "--full-scale-dbm", "-30", "-o", str(out)], capsys)
     assert rc == 0, err
     s = json.loads((out / "report.json").read_text())["measured"]["sensitivity"]
     assert s["noise_figure_db"] == 20.0 and s["noise_figure_from"] == "--noise-figure"
+    # the full scale places the test levels in dBFS (dBm - full scale); the S/N, and so what follows, does
+    # not depend on it
+    assert s["full_scale_dbm"] == -30.0 and s["full_scale_from"] == "--full-scale-dbm"
     # S/N = m²(C/N0)/(2W) with N0 = kT0 + NF: the prediction, recomputed from the reported W
     want = 20 + 10 * np.log10(2 * s["noise_bandwidth_hz"]) - 20 * np.log10(0.3) - 174.0 + 20.0 + s["image_noise_db"]
     assert s["predicted_dbm"] == pytest.approx(want, abs=0.05)
     assert s["level_dbm"] == pytest.approx(want, abs=0.5)
+

@@ -195,3 +195,24 @@ def test_help_has_an_unwrapped_example(capsys):
     assert rc == 0
     assert ("    sdrx compare demo_signals/coast.sigmf-meta --tune 1130k wide narrow -o demo_out/compare "
             "--blind 10\n") in out
+
+
+def test_full_scale_dbm_reaches_every_chain(capture, tmp_path, capsys):
+    """--full-scale-dbm: each chain's receiver runs with it (a spec with a noise figure and no full scale of its
+    own is receivable) and compare.json gives each carrier in dBm = dBFS + the full scale."""
+    nf = tmp_path / "noisy.toml"
+    nf.write_text("[frontend]\nnoise_figure_db = 10\n")
+    out = tmp_path / "cmp"
+    args = ["compare", str(capture), "--tune", "1M", str(nf), "narrow", "-o", str(out), "--duration", "1",
+            "--quiet"]
+    _bad(capsys, args, "frontend.noise_figure_db: 10 dB needs the antenna power of full scale", out)
+    rc, _, err = run(args + ["--full-scale-dbm", "-10 dBm"], capsys)
+    assert rc == 0, err
+    res = json.loads((out / "compare.json").read_text())
+    for s in res["specs"]:
+        r = s["receive"]
+        assert r["full_scale_dbm"] == -10.0
+        for k in ("mean", "min", "max"):
+            assert r["carrier_dbm"][k] == pytest.approx(r["carrier_dbfs"][k] - 10.0, abs=1e-9)
+        # the station was made at -20 dBFS (the synthesizer's level): -30 dBm at this full scale
+        assert r["carrier_dbm"]["mean"] == pytest.approx(-30.0, abs=0.3)

@@ -483,3 +483,28 @@ def test_measured_points_below_the_floor_are_marked(monkeypatch):
         (circ,) = [ln for ln in ax.get_lines() if ln.get_marker() == "o"]
         assert sorted(circ.get_xdata()) == sorted(above) and min(circ.get_ydata()) > bottom
         assert tri.get_label() in [t.get_text() for t in ax.get_legend().get_texts()]
+
+
+def test_capture_carriers_in_dbm_beside_dbfs(capture, tmp_path):
+    """--full-scale-dbm (or the spec's frontend.full_scale_dbm): each carrier in dBm = dBFS + the full scale."""
+    path, truth = capture
+    plain = build_report("medium", TUNE, capture=path, measure=False)
+    assert plain.data["full_scale_dbm"] is None and plain.data["full_scale_from"] is None
+    assert all(c["antenna_dbm"] is None and c["detector_dbm"] is None for c in plain.data["carriers"])
+    rep = build_report("medium", TUNE, capture=path, measure=False, full_scale_dbm="-10 dBm")
+    assert rep.data["full_scale_dbm"] == -10.0 and rep.data["full_scale_from"] == "--full-scale-dbm"
+    cars = {c["channel_hz"]: c for c in rep.data["carriers"]}
+    for f, a in truth.items():
+        c = cars[f]
+        assert c["antenna_dbm"] == pytest.approx(c["antenna_dbfs"] - 10.0, abs=1e-9)
+        assert c["detector_dbm"] == pytest.approx(c["detector_dbfs"] - 10.0, abs=1e-9)
+        assert c["antenna_dbm"] == pytest.approx(20 * np.log10(a) - 10.0, abs=0.01)   # the carrier as made
+    write_report(rep, tmp_path / "r")
+    _check_html_against_json(tmp_path / "r")
+    assert "at antenna, dBm" in (tmp_path / "r" / "report.html").read_text()
+    # the spec's own full scale, and the option over it
+    spec = {"frontend": {"full_scale_dbm": -20}}
+    own = build_report(spec, TUNE, capture=path, measure=False)
+    assert (own.data["full_scale_dbm"], own.data["full_scale_from"]) == (-20.0, "chain spec")
+    over = build_report(spec, TUNE, capture=path, measure=False, full_scale_dbm=-10)
+    assert [c["antenna_dbm"] for c in over.data["carriers"]] == [c["antenna_dbm"] for c in rep.data["carriers"]]

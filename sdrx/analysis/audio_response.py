@@ -170,7 +170,8 @@ def measure_audio_response(design, tune_hz: float, *, path: str = "fast", spacin
     phases = -math.pi * k * k / freqs.size
     m = depth_rms * math.sqrt(2.0 / freqs.size)
     n = int(round((_SETTLE_S + _WINDOW_S) * info.fs))
-    rx = Receiver(design, info, tune_hz, path=path, agc_hold_gain_db=hold_gain_db)
+    # a bench measurement of the chain: noise-free, as the other test-tone figures (no front-end noise)
+    rx = Receiver(design, info, tune_hz, path=path, agc_hold_gain_db=hold_gain_db, thermal_noise=False)
     env = 1.0 + _comb_period(freqs, phases, m, info.fs)
     env = np.tile(env, -(-n // env.size))[:n]     # every tone is periodic in the window
     carrier = np.exp(2j * math.pi * (tune_hz - info.center_hz) / info.fs * np.arange(n))

@@ -96,8 +96,8 @@ class Totals:
                 "min": round(self.lo_db, 4), "max": round(self.hi_db, 4)}
 
 
-def log_csv(captures) -> str:
-    """The level log as CSV text: one row per capture and second, three columns per station.
+def log_csv(captures, full_scale_dbm=None) -> str:
+    """The level log as CSV text: one row per capture and second, three columns per station (six in dBm too).
 
     Parameters
     ----------
@@ -105,6 +105,10 @@ def log_csv(captures) -> str:
         Stations are the union over captures (columns in frequency order,
         as given); a station a capture does not hold, or a second without a
         window, leaves its cells empty.
+    full_scale_dbm : dict, optional
+        Station label -> the antenna power of full scale, dBm (or None): a
+        station with one has three more columns, its levels in dBm
+        (:func:`sdrx.run.levels_dbm`).
 
     Examples
     --------
@@ -113,7 +117,10 @@ def log_csv(captures) -> str:
     capture,t_s,1130k mean_dbfs,1130k min_dbfs,1130k max_dbfs
     night,0,-20.94,-22.00,-20.00
     night,1,-30.00,-30.00,-30.00
+    >>> print(log_csv([("night", 0.0, {"1130k": r})], {"1130k": -10.0}).strip().splitlines()[1])
+    night,0,-20.94,-22.00,-20.00,-30.94,-32.00,-30.00
     """
+    scales = full_scale_dbm or {}
     labels = []
     for _, _, rows in captures:
         for k in rows:
@@ -121,7 +128,8 @@ def log_csv(captures) -> str:
                 labels.append(k)
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["capture", "t_s"] + [f"{k} {c}_dbfs" for k in labels for c in ("mean", "min", "max")])
+    w.writerow(["capture", "t_s"] + [f"{k} {c}_{u}" for k in labels
+                                     for u in ("dbfs", "dbm")[:1 + (scales.get(k) is not None)] for c in _STATS])
     for name, start_s, rows in captures:
         seconds = sorted({int(i) for r in rows.values() for i in r.index})
         cols = {}
@@ -131,7 +139,20 @@ def log_csv(captures) -> str:
         for s in seconds:
             line = [name, f"{start_s + s:.6g}"]
             for k in labels:
-                v = cols.get(k, {}).get(s)
-                line += ["", "", ""] if v is None else [f"{x:.2f}" for x in v]
+                line += _cells(cols.get(k, {}).get(s), scales.get(k))
             w.writerow(line)
     return buf.getvalue()
+
+
+_STATS = ("mean", "min", "max")
+
+
+def _cells(levels_dbfs, full_scale_dbm) -> list:
+    """One station's cells of a row: mean, min, max in dBFS, then in dBm when the full scale is known."""
+    from ..run import levels_dbm
+
+    width = 3 if full_scale_dbm is None else 6
+    if levels_dbfs is None:
+        return [""] * width
+    dbm = levels_dbm(dict(zip(_STATS, levels_dbfs)), full_scale_dbm)
+    return [f"{x:.2f}" for x in levels_dbfs] + ([] if dbm is None else [f"{dbm[c]:.2f}" for c in _STATS])

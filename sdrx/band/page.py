@@ -45,12 +45,14 @@ def _db(v) -> str:
 
 def _station_row(st: dict, svg: str) -> str:
     c, g = st["carrier_dbfs"], st["agc_gain_db"]
+    m = st.get("carrier_dbm")
+    dbm = "" if m is None or m["mean"] is None else f'<br><span class="meta">{_db(m["mean"])} dBm</span>'
     warn = "<br>".join(_e(w) for w in st["warnings"])
     label = f"{st['name']} ({st['folder']})" if st.get("folder") else st["name"]
     return (
         f'<tr class="station" data-station="{_e(st["name"])}" data-tune-hz="{_e(repr(float(st["tune_hz"])))}">'
         f'<td>{_e(st["name"][:-1])} kHz<br><span class="meta">{_e(st["chain"])}</span></td>'
-        f'<td class="n">{_db(c["mean"])}<br><span class="meta">{_db(c["min"])} .. {_db(c["max"])}</span></td>'
+        f'<td class="n">{_db(c["mean"])}{dbm}<br><span class="meta">{_db(c["min"])} .. {_db(c["max"])}</span></td>'
         f'<td class="n">{_db(g["min"])} .. {_db(g["max"])}</td>'
         f'<td>{svg}</td>'
         f'<td><audio class="station" controls preload="metadata" src="{_e(quote(st["file"]))}" data-label="{_e(label)}"></audio></td>'

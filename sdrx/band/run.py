@@ -57,6 +57,7 @@ class _Capture:
     segments: list = None
     spectrogram: object = None
     rows: dict = None              # station name -> LevelRows (after the run)
+    scales: dict = None            # station name -> full scale, dBm, or None (after the run)
 
     @property
     def info(self):
@@ -115,7 +116,7 @@ def _designs(choice) -> dict:
     return out
 
 
-def _pick_stations(cap: _Capture, freqs, choice, designs, min_level) -> None:
+def _pick_stations(cap: _Capture, freqs, choice, designs, min_level, fs_dbm=None) -> None:
     """The stations of one capture: the list given, or the surveyed carriers (strong enough, receivable)."""
     from ..receiver import Receiver
 
@@ -128,7 +129,7 @@ def _pick_stations(cap: _Capture, freqs, choice, designs, min_level) -> None:
                                      f"({format_frequency(lo)} to {format_frequency(hi)})")
             spec = choice.spec_for(f)
             try:
-                Receiver.check_station(designs[spec], cap.info, f)
+                Receiver.check_station(designs[spec], cap.info, f, fs_dbm)
             except ParameterError as exc:
                 raise ParameterError(f"--stations {station_name(f)} ({cap.arg}): {exc}") from None
             cap.stations.append((f, spec))
@@ -140,7 +141,7 @@ def _pick_stations(cap: _Capture, freqs, choice, designs, min_level) -> None:
             continue
         spec = choice.spec_for(c.freq_hz)
         try:
-            Receiver.check_station(designs[spec], cap.info, c.freq_hz)
+            Receiver.check_station(designs[spec], cap.info, c.freq_hz, fs_dbm)
         except ParameterError as exc:
             cap.skipped.append({"freq_hz": c.freq_hz, "level_dbfs": round(c.level_dbfs, 2), "reason": str(exc)})
             continue
@@ -155,13 +156,14 @@ def _check_pairs(caps, choice) -> None:
                                  f"{format_frequency(f)} (see --stations)")
 
 
-def _plan(cap: _Capture, designs, segment_s, spacing_hz) -> float:
+def _plan(cap: _Capture, designs, segment_s, spacing_hz, fs_dbm=None) -> float:
     """Segments and spectrogram columns of one capture; returns its overlap, seconds."""
     from ..receiver import Receiver
     from .spectrogram import plan_spectrogram
 
     used = sorted({spec for _, spec in cap.stations})
-    probes = [Receiver(designs[s], cap.info, next(f for f, sp in cap.stations if sp == s)) for s in used]
+    probes = [Receiver(designs[s], cap.info, next(f for f, sp in cap.stations if sp == s), full_scale_dbm=fs_dbm)
+              for s in used]
     grid, cut = grid_period(probes), cut_period(probes)
     overlap = max((settle_time_s(designs[s]) for s in used), default=0.0)
     seg = None if not segment_s else segment_s
@@ -232,7 +234,7 @@ class _Streams:
 def band(captures, out_dir, *, stations="all", min_level_dbfs=None, chains=(), spacing_hz="10k", start_s=0.0,
          duration_s=None, segment_s=DEFAULT_SEGMENT_S, workers=None, scheduler=None, float_output: bool = False,
          force: bool = False, progress=None, datatype=None, fs=None, center_hz=None, work_dir=None,
-         correct=None, ppm=None) -> dict:
+         correct=None, ppm=None, full_scale_dbm=None) -> dict:
     """Receive every station of each capture; write the WAVs, band.json, log.csv and index.html.
 
     Parameters
@@ -272,6 +274,10 @@ def band(captures, out_dir, *, stations="all", min_level_dbfs=None, chains=(), s
     correct, ppm : optional
         Capture corrections (``--correct``, ``--ppm``), estimated once per capture over its
         excerpt and applied ahead of every station (as :func:`sdrx.run.receive` does).
+    full_scale_dbm : float or str, optional
+        ``--full-scale-dbm``: antenna power of a full-scale carrier in the captures, for every
+        station (overrides each spec's ``frontend.full_scale_dbm``); band.json and log.csv then
+        give the carrier levels in dBm beside dBFS (as they do when the spec gives it).
 
     Returns
     -------
@@ -300,6 +306,9 @@ def band(captures, out_dir, *, stations="all", min_level_dbfs=None, chains=(), s
     spacing = parse_frequency(spacing_hz, "--spacing")
     if segment_s is not None:
         segment_s = parse_seconds(segment_s, "--segment")
+    from ..chain.spec import full_scale_override
+
+    fs_dbm = full_scale_override(full_scale_dbm)
     choice = parse_chains(chains)
     designs = _designs(choice)
     if work_dir is not None and not Path(work_dir).is_dir():
@@ -310,20 +319,20 @@ def band(captures, out_dir, *, stations="all", min_level_dbfs=None, chains=(), s
         for c, s in zip(caps, _run(_survey_job, jobs, workers, scheduler)):
             c.survey = s
     for c in caps:
-        _pick_stations(c, freqs, choice, designs, min_level_dbfs)
+        _pick_stations(c, freqs, choice, designs, min_level_dbfs, fs_dbm)
     _check_pairs(caps, choice)
     if not any(c.stations for c in caps):
         raise ParameterError("--stations all: the survey found no carrier to receive in "
                              + ", ".join(c.arg for c in caps) + "; name the stations with --stations F,F,...")
-    overlap = max(_plan(c, designs, segment_s, spacing) for c in caps)
+    overlap = max(_plan(c, designs, segment_s, spacing, fs_dbm) for c in caps)
     names = _names(caps)
     files = sorted(names.values()) + [JSON_FILE, LOG_FILE, PAGE_FILE, MARKER]
     check_band_dir(out_dir, files, inputs, force=force)
     out = Path(out_dir)
     with output_set(out, files, stale=old, streamed=set(names.values())) as (tmp, outputs):
         results = _receive_all(caps, kwargs, names, outputs, designs, float_output, workers, scheduler, progress,
-                               out, work_dir)
-        summary = _summary(caps, names, designs, results, spacing, segment_s, overlap, float_output)
+                               out, work_dir, fs_dbm)
+        summary = _summary(caps, names, designs, results, spacing, segment_s, overlap, float_output, fs_dbm)
         _write_reports(caps, tmp, summary, results)
         tmp[MARKER].write_text(json.dumps({"made_by": "sdrx band", "files": files}, indent=1) + "\n")
     return summary
@@ -336,7 +345,7 @@ def _run(fn, jobs, workers, scheduler, **kw):
 
 
 def _receive_all(caps, kwargs, names, outputs, designs, float_output, workers, scheduler, progress, out,
-                 work_dir) -> dict:
+                 work_dir, fs_dbm=None) -> dict:
     """Run every segment; the WAVs are complete (on their temporary paths) when this returns."""
     from .segment import SegmentJob, StationJob, run_segment
 
@@ -349,7 +358,7 @@ def _receive_all(caps, kwargs, names, outputs, designs, float_output, workers, s
         for s in c.segments:
             jobs.append(SegmentJob(c.index, str(Path(c.arg).absolute()), kwargs, st, s, c.first, c.count,
                                    float_output, c.spectrogram, None if parts_dir is None else str(parts_dir),
-                                   c.corrections))
+                                   c.corrections, full_scale_dbm=fs_dbm))
             weights.append(s.samples)
     streams = _Streams(caps, names, out, outputs, designs, float_output)
     results = {}
@@ -393,14 +402,16 @@ def _receive_all(caps, kwargs, names, outputs, designs, float_output, workers, s
     return results
 
 
-def _summary(caps, names, designs, results, spacing, segment_s, overlap, float_output) -> dict:
+def _summary(caps, names, designs, results, spacing, segment_s, overlap, float_output, fs_dbm=None) -> dict:
     from ..chain.spec import spec_to_dict
+    from ..receiver.receiver import station_full_scale
+    from ..run import levels_dbm
     from .levels import Totals, merge_rows
 
     out_caps = []
     for c in caps:
         segs = [results[c.index, s.index] for s in c.segments]
-        rows_all = {}
+        rows_all, scales = {}, {}
         st_out = []
         for j, (f, spec) in enumerate(c.stations):
             d = designs[spec]
@@ -409,6 +420,7 @@ def _summary(caps, names, designs, results, spacing, segment_s, overlap, float_o
             tot = Totals()
             tot.add(rows)
             rows_all[station_name(f)] = rows
+            scales[station_name(f)] = scale = station_full_scale(d, fs_dbm)
             lo = [p.agc_gain_db[0] for p in parts if p.agc_gain_db[0] is not None]
             hi = [p.agc_gain_db[1] for p in parts if p.agc_gain_db[1] is not None]
             warnings = []
@@ -430,11 +442,12 @@ def _summary(caps, names, designs, results, spacing, segment_s, overlap, float_o
                 "lo_hz": d.lo_hz(f), "if_hz": d.if_hz, "image_hz": d.image_hz(f), "path": "fast",
                 "output": {"rate_hz": d.audio.rate_hz, "seconds": samples / d.audio.rate_hz, "samples": samples,
                            "format": "float32" if float_output else "pcm16"},
-                "carrier_dbfs": tot.to_json(),
+                "carrier_dbfs": tot.to_json(), "full_scale_dbm": scale,
+                "carrier_dbm": levels_dbm(tot.to_json(), scale),
                 "agc_gain_db": {"min": round(min(lo), 4) if lo else None, "max": round(max(hi), 4) if hi else None},
                 "clipped_samples": clipped, "survey_level_dbfs": level, "warnings": warnings,
             })
-        c.rows = rows_all
+        c.rows, c.scales = rows_all, scales
         out_caps.append({
             "capture": c.info.to_json(), "folder": c.folder, "start_s": c.first / c.info.fs,
             "duration_s": c.count / c.info.fs, "segments": len(c.segments),
@@ -457,7 +470,7 @@ def _write_reports(caps, tmp, summary, results) -> None:
 
     tmp[JSON_FILE].write_text(json.dumps(summary, indent=1, sort_keys=True, allow_nan=False) + "\n")
     log = [(c.folder or Path(c.arg).name, c.first / c.info.fs, c.rows) for c in caps]
-    tmp[LOG_FILE].write_text(log_csv(log))
+    tmp[LOG_FILE].write_text(log_csv(log, {k: v for c in caps for k, v in c.scales.items()}))
     page_caps = []
     for c, cs in zip(caps, summary["captures"]):
         sp = c.spectrogram

@@ -53,7 +53,8 @@ class SegmentJob:
 
     ``capture`` and ``open_kwargs`` open the capture (a path the worker
     sees); ``first``/``count`` is the excerpt; ``parts_dir`` is where the
-    worker writes each station's codes (None: the caller passes a sink).
+    worker writes each station's codes (None: the caller passes a sink);
+    ``full_scale_dbm`` is the run's ``--full-scale-dbm`` (None: each spec's own).
     """
 
     capture_index: int
@@ -67,6 +68,7 @@ class SegmentJob:
     spectrogram: object = None
     parts_dir: Optional[str] = None
     corrections: object = None      # the capture's CorrectionPlan, estimated once by the client
+    full_scale_dbm: Optional[float] = None
 
 
 @dataclass
@@ -175,7 +177,8 @@ def run_segment(job: SegmentJob, sink=None, progress=None) -> SegmentResult:
         reader = corrected_reader(reader, job.corrections)
     info = reader.info
     fs = info.fs
-    mr = MultiReceiver([(s.design, s.tune_hz) for s in job.stations], info, first_sample=seg.warm)
+    mr = MultiReceiver([(s.design, s.tune_hz) for s in job.stations], info, first_sample=seg.warm,
+                       full_scale_dbm=job.full_scale_dbm)
     mr.restart_statistics_at(seg.start)
     cuts = [_Cut(_audio_samples(seg.start - seg.warm, rx),
                  None if seg.last else _audio_samples(seg.end - seg.start, rx)) for rx in mr.stations]

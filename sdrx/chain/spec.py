@@ -37,6 +37,7 @@ __all__ = [
     "spec_to_dict",
     "PRESET_DIR",
     "parse_full_scale_dbm",
+    "full_scale_override",
     "check_noise_figure_db",
     "FULL_SCALE_DBM_RANGE",
     "NOISE_FIGURE_DB_RANGE",
@@ -146,6 +147,17 @@ class FrontendSpec:
 FULL_SCALE_DBM_RANGE = (-150.0, 60.0)
 #: Accepted range of ``frontend.noise_figure_db``, dB (0 dB: a noiseless receiver).
 NOISE_FIGURE_DB_RANGE = (0.0, 60.0)
+
+
+def full_scale_override(value):
+    """The ``--full-scale-dbm`` option: None when not given, else its value checked by :func:`parse_full_scale_dbm`.
+
+    Examples
+    --------
+    >>> full_scale_override(None), full_scale_override("-10")
+    (None, -10.0)
+    """
+    return None if value is None else parse_full_scale_dbm(value, "--full-scale-dbm")
 
 
 def parse_full_scale_dbm(value, name: str = "--full-scale-dbm") -> float:

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import click
 
-from .common import SdrxCommand, capture_kwargs, capture_options, correction_options, progress_for
+from .common import (SdrxCommand, capture_kwargs, capture_options, correction_options, full_scale_option,
+                     progress_for)
 
 __all__ = ["command"]
 
@@ -29,13 +30,14 @@ __all__ = ["command"]
               help="Run on an existing Dask cluster, e.g. tcp://10.0.0.5:8786 (workers must see the same paths).")
 @click.option("--work-dir", "work_dir", default=None, type=click.Path(file_okay=False), metavar="DIR",
               help="Shared folder where workers leave segment parts (default: inside the output folder).")
+@full_scale_option
 @click.option("--float", "float_output", is_flag=True, help="Write 32-bit float WAVs instead of 16-bit PCM.")
 @click.option("--force", is_flag=True, help="Replace an earlier band run in the output folder.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 @correction_options
 @capture_options
 def command(captures, out, stations, min_level, chains, spacing, segment, workers, scheduler, work_dir,
-            float_output, force, quiet, correct, ppm, datatype, rate, center, start, duration):
+            full_scale_dbm, float_output, force, quiet, correct, ppm, datatype, rate, center, start, duration):
     """Receive every station of each CAPTURE: one WAV per station, a level log and an overview page.
 
     Each capture is read and channelized once; every station's IF stages,
@@ -43,6 +45,8 @@ def command(captures, out, stations, min_level, chains, spacing, segment, worker
     `sdrx receive` of that station (to float rounding). Several captures, and segments of long
     captures, run in parallel with --workers or --scheduler. --correct undoes
     the recorder's faults (estimated once per capture) ahead of every station.
+    With --full-scale-dbm (or the specs' frontend.full_scale_dbm) band.json
+    and log.csv give the carrier levels in dBm beside dBFS.
 
     Example:
 
@@ -57,7 +61,7 @@ def command(captures, out, stations, min_level, chains, spacing, segment, worker
         s = band(list(captures), out, stations=stations, min_level_dbfs=min_level, chains=chains, spacing_hz=spacing,
                  start_s=start, duration_s=duration, segment_s=seg, workers=workers, scheduler=scheduler,
                  float_output=float_output, force=force, progress=bar, work_dir=work_dir,
-                 correct=correct, ppm=ppm, **capture_kwargs(datatype, rate, center))
+                 correct=correct, ppm=ppm, full_scale_dbm=full_scale_dbm, **capture_kwargs(datatype, rate, center))
     finally:
         if bar is not None:
             bar.close()

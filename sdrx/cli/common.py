@@ -9,7 +9,7 @@ import click
 from ..errors import SdrxError
 from ..progress import make_progress
 
-__all__ = ["one_line", "run_cli", "capture_options", "capture_kwargs", "correction_options", "progress_for", "fail",
+__all__ = ["one_line", "run_cli", "capture_options", "capture_kwargs", "correction_options", "full_scale_option", "progress_for", "fail",
            "SdrxCommand", "SdrxGroup", "usage_line", "split_debug"]
 
 
@@ -196,3 +196,10 @@ def correction_options(f):
     for o in reversed(opts):
         f = o(f)
     return f
+
+
+def full_scale_option(f):
+    """``--full-scale-dbm``: the capture's calibration (antenna power of a full-scale carrier), over the spec's."""
+    return click.option("--full-scale-dbm", "full_scale_dbm", default=None, metavar="DBM",
+                        help="Antenna power of a full-scale carrier in this capture, e.g. -10 (overrides the spec's "
+                             "frontend.full_scale_dbm): carrier levels in dBm, thermal noise placed in dBFS.")(f)

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import click
 
-from .common import SdrxCommand, capture_kwargs, capture_options, correction_options, progress_for
+from .common import (SdrxCommand, capture_kwargs, capture_options, correction_options, full_scale_option,
+                     progress_for)
 
 __all__ = ["command"]
 
@@ -23,11 +24,12 @@ __all__ = ["command"]
               help="Channel spacing for the adjacent-channel figures (9k or 10k at MF).")
 @click.option("--path", "path", type=click.Choice(["fast", "exact"]), default="fast", show_default=True,
               help="Execution path of the receiver.")
+@full_scale_option
 @click.option("--force", is_flag=True, help="Write into DIR although it is not empty.")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary line.")
 @correction_options
 @capture_options
-def command(capture, specs, tune, out_dir, blind, seed, spacing, path, force, quiet, correct, ppm,
+def command(capture, specs, tune, out_dir, blind, seed, spacing, path, full_scale_dbm, force, quiet, correct, ppm,
             datatype, rate, center, start, duration):
     """Compare chains by ear: the same excerpt through each, aligned and loudness-matched.
 
@@ -44,7 +46,8 @@ def command(capture, specs, tune, out_dir, blind, seed, spacing, path, force, qu
     of the capture from --start, at most 30 s (1 to 120 s allowed). Each
     receiver runs 0.2 s ahead of the excerpt to settle (from --start 0, the
     first 0.2 s is not heard). With --correct the recorder's faults are
-    estimated once and undone alike for every chain.
+    estimated once and undone alike for every chain. --full-scale-dbm gives
+    every chain the capture's calibration (compare.json: carrier levels in dBm).
     """
     from ..compare.run import compare
 
@@ -52,7 +55,7 @@ def command(capture, specs, tune, out_dir, blind, seed, spacing, path, force, qu
     try:
         result = compare(capture, tune, specs, out_dir, start_s=start, duration_s=duration, blind=blind,
                          seed=seed, spacing_hz=spacing, path=path, force=force, progress=bar,
-                         correct=correct, ppm=ppm, **capture_kwargs(datatype, rate, center))
+                         correct=correct, ppm=ppm, full_scale_dbm=full_scale_dbm, **capture_kwargs(datatype, rate, center))
     finally:
         if bar is not None:
             bar.close()

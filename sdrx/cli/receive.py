@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from .common import SdrxCommand, capture_options, correction_options, one_line, progress_for
+from .common import SdrxCommand, capture_options, correction_options, full_scale_option, one_line, progress_for
 
 __all__ = ["command"]
 
@@ -53,9 +53,7 @@ def _show_chain(ctx, _param, value):
 @click.option("--path", "path", type=click.Choice(["fast", "exact"]), default="fast", show_default=True,
               help="fast: complex-envelope equivalent; exact: a real IF at an IF sample rate.")
 @click.option("--if-rate", default=None, metavar="HZ", help="Exact path: IF sample rate (default: chosen automatically).")
-@click.option("--full-scale-dbm", "full_scale_dbm", default=None, metavar="DBM",
-              help="Antenna power of a full-scale carrier in this capture, e.g. -10 (overrides the spec's "
-                   "frontend.full_scale_dbm): carrier levels in dBm, thermal noise placed in dBFS.")
+@full_scale_option
 @click.option("--float", "float_output", is_flag=True, help="Write 32-bit float WAV instead of 16-bit PCM.")
 @click.option("--force", is_flag=True, help="Replace existing outputs.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")

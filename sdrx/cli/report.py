@@ -5,7 +5,8 @@ from __future__ import annotations
 import click
 
 from ..errors import ParameterError
-from .common import SdrxCommand, capture_kwargs, capture_options, correction_options, progress_for
+from .common import (SdrxCommand, capture_kwargs, capture_options, correction_options, full_scale_option,
+                     progress_for)
 
 __all__ = ["command"]
 
@@ -24,14 +25,15 @@ __all__ = ["command"]
 @click.option("--noise-figure", "noise_figure", default=None, metavar="DB",
               help="Noise figure of the measured sensitivity (default: the spec's frontend.noise_figure_db, "
                    "else 10 dB).")
+@full_scale_option
 @click.option("-o", "--output", "out_dir", required=True, metavar="DIR",
               help="Folder for report.json, report.html and the PNG figures (created if missing).")
 @click.option("--force", is_flag=True, help="Replace report files already in DIR.")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary line.")
 @correction_options
 @capture_options
-def command(chain, tune, capture, spacing, path, points, no_measure, noise_figure, out_dir, force, quiet, correct,
-            ppm,
+def command(chain, tune, capture, spacing, path, points, no_measure, noise_figure, full_scale_dbm, out_dir, force,
+            quiet, correct, ppm,
             datatype, rate, center, start, duration):
     """Selectivity, image and datasheet report: designed and measured figures, sensitivity, fidelity, THD.
 
@@ -42,6 +44,8 @@ def command(chain, tune, capture, spacing, path, points, no_measure, noise_figur
     Writes DIR/report.json, DIR/report.html (self-contained, opens from disk)
     and DIR/*.png. With --capture, the carriers near the tuning and the
     capture's spectrum are added (of the corrected capture with --correct).
+    --full-scale-dbm gives the capture's carriers in dBm beside dBFS and is
+    the full scale of the measured sensitivity.
     """
     from ..report.build import build_report, report_files, write_report
     from ..units import parse_seconds
@@ -57,6 +61,9 @@ def command(chain, tune, capture, spacing, path, points, no_measure, noise_figur
         if parse_seconds(start, "--start") != 0:
             raise ParameterError(f"--start {start}: only applies with --capture CAPTURE")
 
+    if full_scale_dbm is not None and capture is None and no_measure:
+        raise ParameterError(f"--full-scale-dbm {full_scale_dbm}: only applies with --capture CAPTURE or to the "
+                             "measured figures (drop --no-measure)")
     nf = None
     if noise_figure is not None:
         from ..chain.spec import check_noise_figure_db
@@ -80,7 +87,7 @@ def command(chain, tune, capture, spacing, path, points, no_measure, noise_figur
         rep = build_report(chain, tune, spacing_hz=spacing, capture=capture, path=path, measure=not no_measure,
                            points=points, start_s=start_s, duration_s=duration_s, progress=bar, noise_figure_db=nf,
                            capture_kw=capture_kwargs(datatype, rate, center) if capture else None,
-                           correct=correct if capture else None, ppm=ppm)
+                           correct=correct if capture else None, ppm=ppm, full_scale_dbm=full_scale_dbm)
     finally:
         if bar is not None:
             bar.close()

@@ -235,7 +235,8 @@ def _truth_tone(capture_path: Path, tune_hz: float):
 
 def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, duration_s=None,
             blind: int = 0, seed=None, spacing_hz=10e3, path: str = "fast", force: bool = False,
-            progress=None, datatype=None, fs=None, center_hz=None, correct=None, ppm=None) -> dict:
+            progress=None, datatype=None, fs=None, center_hz=None, correct=None, ppm=None,
+            full_scale_dbm=None) -> dict:
     """Run several chains over one excerpt and write a fair listening comparison.
 
     Parameters
@@ -268,6 +269,9 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
     correct, ppm
         Capture corrections (``--correct``, ``--ppm``), estimated once over the
         excerpt run (with its settling) and applied alike for every spec.
+    full_scale_dbm : float or str, optional
+        ``--full-scale-dbm``: antenna power of a full-scale carrier in this
+        capture, for every spec (overrides each spec's ``frontend.full_scale_dbm``).
 
     Returns
     -------
@@ -289,6 +293,9 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
     all outputs at one loudness, none above −1 dBFS sample peak.
     """
     tune, spacing = _tuning(tune_hz, spacing_hz)
+    from ..chain.spec import full_scale_override
+
+    fs_dbm = full_scale_override(full_scale_dbm)
     choices = parse_spec_args(specs)
     designs = _designs(choices, tune, spacing)
     _check_blind_count(blind)
@@ -313,7 +320,7 @@ def compare(capture, tune_hz, specs: Sequence[str], out_dir, *, start_s=0.0, dur
     total = int(round(rx_duration * info.fs)) * len(choices)
     raw, rates, summaries, delays = _receive_all(
         capture, tune, designs, info, rx_start=rx_start, rx_duration=rx_duration, path=path, fixes=fixes,
-        spacing=spacing, progress=progress, datatype=datatype, fs=fs, center_hz=center_hz)
+        spacing=spacing, progress=progress, datatype=datatype, fs=fs, center_hz=center_hz, full_scale_dbm=fs_dbm)
     return write_comparison(
         out, choices, designs, raw, rates, plan=plan, tune_hz=tune, spacing_hz=spacing,
         summaries=summaries, tone_hz=_truth_tone(Path(info.path), tune), old_files=old_files,
@@ -407,7 +414,7 @@ def _check_targets(out: Path, choices, plan, info) -> None:
 
 
 def _receive_all(capture, tune, designs, info, *, rx_start, rx_duration, path, fixes, spacing, progress,
-                 datatype, fs, center_hz):
+                 datatype, fs, center_hz, full_scale_dbm=None):
     """Receive the excerpt through every design into a temporary folder.
 
     Returns each chain's audio after :data:`SETTLE_S`, its rate, its run summary and
@@ -430,14 +437,14 @@ def _receive_all(capture, tune, designs, info, *, rx_start, rx_duration, path, f
             summary = receive(capture, tune, d, wav, path=path, start_s=rx_start, duration_s=rx_duration,
                               float_output=True, force=True, progress=sub if progress else None,
                               datatype=datatype, fs=fs, center_hz=center_hz, correct=fixes,
-                              spacing_hz=spacing)
+                              spacing_hz=spacing, full_scale_dbm=full_scale_dbm)
             audio, afs = sf.read(str(wav), dtype="float64", always_2d=False)
             if audio.ndim != 1:
                 audio = audio[:, 0]
             raw.append(audio[int(round(SETTLE_S * afs)):])
             rates.append(float(afs))
             summaries.append(summary)
-            delays.append(Receiver(d, info, tune, path=path).delay_s)
+            delays.append(Receiver(d, info, tune, path=path, full_scale_dbm=full_scale_dbm).delay_s)
     return raw, rates, summaries, delays
 
 

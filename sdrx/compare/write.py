@@ -166,7 +166,8 @@ def _spec_row(c, d, *, wav, index, tune, spacing, path, match, after, delay_ms, 
         "sinad_db": sinad,
         # compare takes the receiver's float output and re-levels it, so its clipping count
         # (of the 16-bit scale, mostly in the start-up left out) does not apply
-        "receive": {k: summary.get(k) for k in ("lo_hz", "if_hz", "image_hz", "carrier_dbfs", "agc_gain_db", "checks")
+        "receive": {k: summary.get(k) for k in ("lo_hz", "if_hz", "image_hz", "carrier_dbfs", "full_scale_dbm",
+                                                    "carrier_dbm", "agc_gain_db", "checks")
                     if k in summary} | {"warnings": [w for w in summary.get("warnings", [])
                                                      if "clipped at full scale" not in w]},
     }

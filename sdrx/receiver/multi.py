@@ -114,12 +114,13 @@ class StationReceiver(Receiver):
 
     Parameters
     ----------
-    design, info, tune_hz, first_sample
+    design, info, tune_hz, first_sample, full_scale_dbm
         As for :class:`~sdrx.receiver.Receiver` (the fast path).
     """
 
-    def __init__(self, design, info, tune_hz: float, first_sample: int = 0):
-        super().__init__(design, info, tune_hz, path="fast", first_sample=first_sample, thermal_noise=False)
+    def __init__(self, design, info, tune_hz: float, first_sample: int = 0, full_scale_dbm=None):
+        super().__init__(design, info, tune_hz, path="fast", first_sample=first_sample, thermal_noise=False,
+                         full_scale_dbm=full_scale_dbm)
         self.banked = _BankedFront(self.front, self.monitor)
         self.front = self.banked
         self._started = True          # the MultiReceiver runs the pre-roll for every station
@@ -206,6 +207,9 @@ class MultiReceiver:
     first_sample : int
         Absolute index of the first sample fed (an excerpt or a segment keeps
         the whole capture's oscillator phases and AGC grid).
+    full_scale_dbm : float, optional
+        Antenna power of a full-scale carrier for this capture, for every
+        station (``--full-scale-dbm``; overrides each spec's ``frontend.full_scale_dbm``).
 
     Raises
     ------
@@ -237,10 +241,11 @@ class MultiReceiver:
     [4800, 4800]
     """
 
-    def __init__(self, stations: Sequence, info, first_sample: int = 0):
+    def __init__(self, stations: Sequence, info, first_sample: int = 0, full_scale_dbm=None):
         self.info = info
         self.first_sample = int(first_sample)
-        self.stations = [StationReceiver(d, info, tune, first_sample=first_sample) for d, tune in stations]
+        self.stations = [StationReceiver(d, info, tune, first_sample=first_sample, full_scale_dbm=full_scale_dbm)
+                         for d, tune in stations]
         self.noise = _shared_noise(self.stations, info)
         self.blanker = _shared_blanker(self.stations, info, first_sample)
         # one pre-roll for all: the longest any station needs; each station starts on it at its own

@@ -22,7 +22,7 @@ from .backend import AGC_STEP, Backend
 from .fast import FastFrontEnd, image_coverage
 from .monitor import ChannelMonitor
 
-__all__ = ["Receiver", "PATHS", "channel_rate"]
+__all__ = ["Receiver", "PATHS", "channel_rate", "station_full_scale"]
 
 PATHS = ("fast", "exact")
 
@@ -40,6 +40,11 @@ def channel_rate(audio_rate_hz: float, fs: float) -> float:
     """
     r = math.ceil(88000.0 / audio_rate_hz)
     return float(min(audio_rate_hz * r, fs))
+
+
+def station_full_scale(design, full_scale_dbm=None):
+    """The full scale a station runs with, dBm: ``--full-scale-dbm`` when given, else the spec's (or None)."""
+    return design.frontend.full_scale_dbm if full_scale_dbm is None else float(full_scale_dbm)
 
 
 def _check_full_scale(frontend, full_scale_dbm) -> None:
@@ -143,7 +148,7 @@ class Receiver:
         self.tune_hz = float(tune_hz)
         self.path = path
         self.warnings: list = []
-        self.full_scale_dbm = design.frontend.full_scale_dbm if full_scale_dbm is None else float(full_scale_dbm)
+        self.full_scale_dbm = station_full_scale(design, full_scale_dbm)
         self.noise = self._thermal_noise(design.frontend, info) if thermal_noise else None
         lo, hi = info.band_hz
         self.plan = _checked_plan(design, info, tune_hz)
@@ -251,13 +256,14 @@ class Receiver:
         return np.concatenate(out)
 
     @staticmethod
-    def check_station(design, info, tune_hz: float) -> None:
+    def check_station(design, info, tune_hz: float, full_scale_dbm=None) -> None:
         """Raise the ParameterError a (fast-path) Receiver of this station would raise, if any.
 
         The same checks as the constructor (the front end's noise, the tuning, the channel rate),
         without building the receiver's channel tables and filters: for choosing stations cheaply.
+        ``full_scale_dbm`` is the ``--full-scale-dbm`` override, as for the constructor.
         """
-        _check_full_scale(design.frontend, design.frontend.full_scale_dbm)
+        _check_full_scale(design.frontend, station_full_scale(design, full_scale_dbm))
         _checked_plan(design, info, tune_hz)
 
     def _thermal_noise(self, frontend, info):

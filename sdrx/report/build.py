@@ -100,8 +100,9 @@ def _difference(meas: dict, des: dict, designed_fn) -> dict:
     return out
 
 
-def _carriers(reader, design, tune_hz, spacing_hz, start_s, duration_s, progress):
+def _carriers(reader, design, tune_hz, spacing_hz, start_s, duration_s, progress, full_scale_dbm=None):
     from ..analysis.survey import round_to_resolution, survey_carriers
+    from ..run import levels_dbm
 
     found = survey_carriers(reader, spacing_hz=spacing_hz, start_s=start_s, duration_s=duration_s,
                             progress=progress)
@@ -115,6 +116,7 @@ def _carriers(reader, design, tune_hz, spacing_hz, start_s, duration_s, progress
         if abs(off) > NEAR_CHANNELS * spacing_hz + spacing_hz / 2 and abs(f - image) > spacing_hz * 1.5:
             continue
         rel = float(sel.relative_response_db(design, tune_hz, [f])[0])
+        dbm = levels_dbm({"antenna": _db(c.level_dbfs), "detector": _db(c.level_dbfs + rel)}, full_scale_dbm) or {}
         rows.append({
             "freq_hz": _hz(round_to_resolution(f, c.offset_resolution_hz)),
             "channel_hz": _hz(c.freq_hz),
@@ -122,6 +124,8 @@ def _carriers(reader, design, tune_hz, spacing_hz, start_s, duration_s, progress
             "antenna_dbfs": _db(c.level_dbfs),
             "selectivity_db": _db(rel),
             "detector_dbfs": _db(c.level_dbfs + rel),
+            "antenna_dbm": dbm.get("antenna"),
+            "detector_dbm": dbm.get("detector"),
             "tuned": abs(off) <= spacing_hz / 2,
             "image": bool(on_image),
             "within_two_channels": bool(spacing_hz / 2 < abs(off) <= 2 * spacing_hz + spacing_hz / 2),
@@ -132,7 +136,7 @@ def _carriers(reader, design, tune_hz, spacing_hz, start_s, duration_s, progress
 
 def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", measure=True, points=31,
                  start_s=0.0, duration_s=None, progress=None, capture_kw=None, correct=None, ppm=None,
-                 noise_figure_db=None) -> Report:
+                 noise_figure_db=None, full_scale_dbm=None) -> Report:
     """Build the selectivity and image report of a chain at one tuning.
 
     Parameters
@@ -162,6 +166,10 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
     noise_figure_db : float, optional
         Noise figure of the measured sensitivity (default: the spec's
         ``frontend.noise_figure_db``, else 10 dB); see :mod:`sdrx.report.datasheet`.
+    full_scale_dbm : float or str, optional
+        ``--full-scale-dbm``: antenna power of a full-scale carrier, dBm (overrides the
+        spec's ``frontend.full_scale_dbm``): the capture's carriers in dBm beside dBFS,
+        and the full scale of the measured sensitivity.
 
     Returns
     -------
@@ -184,20 +192,24 @@ def build_report(chain, tune_hz, *, spacing_hz=10e3, capture=None, path="fast", 
     """
     from ..chain import design_chain
 
+    from ..chain.spec import full_scale_override
+
     design = design_chain(chain)
     tune, spacing = _checked_options(design, tune_hz, spacing_hz, path, points)
+    fs_dbm = full_scale_override(full_scale_dbm)
     reader, plan = _opened_capture(capture, capture_kw, tune, spacing, correct, ppm, start_s, duration_s)
     designed = sel.designed_figures(design, tune, spacing)
     des = _designed_section(design, tune, spacing, designed)
     meas, datasheet_figs = None, {}
     if measure:
         meas, datasheet_figs = _measured_section(design, tune, spacing, designed, des, path, points,
-                                                 noise_figure_db, progress)
+                                                 noise_figure_db, progress, fs_dbm)
     data = _report_head(design, tune, spacing, des, meas)
     title = f"{short_name(design.name)}: tuned to {format_frequency(tune)}, IF {format_frequency(design.if_hz)}"
     figs = _design_figures(design, tune, spacing, designed, des, meas, title)
     if reader is not None:
-        _add_capture(data, figs, reader, plan, design, tune, spacing, designed, start_s, duration_s, title)
+        _add_capture(data, figs, reader, plan, design, tune, spacing, designed, start_s, duration_s, title,
+                     fs_dbm)
     figs.update(datasheet_figs)
     data["figures"] = sorted(figs)
     return Report(data, figs)
@@ -286,7 +298,8 @@ def _group_delay_json(design, tune, offs, gd, e3) -> dict:
     }
 
 
-def _measured_section(design, tune, spacing, designed, des, path, points, noise_figure_db, progress):
+def _measured_section(design, tune, spacing, designed, des, path, points, noise_figure_db, progress,
+                      full_scale_dbm=None):
     """The ``measured`` block (test carriers, AGC, datasheet sections) and the datasheet figures."""
     from .datasheet import datasheet_sections
 
@@ -297,7 +310,7 @@ def _measured_section(design, tune, spacing, designed, des, path, points, noise_
     meas["difference"] = _difference(meas, des, _designed_response(design, tune))
     meas["agc"] = measure_agc(design, tune, path)
     sections, figs = datasheet_sections(design, tune, spacing, path=path, noise_figure_db=noise_figure_db,
-                                        progress=progress)
+                                        progress=progress, full_scale_dbm=full_scale_dbm)
     meas.update(sections)
     return meas, figs
 
@@ -354,11 +367,19 @@ def _fine_curve(dres, centre_hz, spacing):
     return np.column_stack([offs, dres(offs)])
 
 
-def _add_capture(data, figs, reader, plan, design, tune, spacing, designed, start_s, duration_s, title):
-    """Add the capture, its corrections and the carriers near the tuning to ``data``, its spectrum to ``figs``."""
+def _add_capture(data, figs, reader, plan, design, tune, spacing, designed, start_s, duration_s, title,
+                 full_scale_dbm=None):
+    """Add the capture, its corrections, its full scale and the carriers near the tuning to ``data``, its
+    spectrum to ``figs``."""
+    from ..receiver.receiver import station_full_scale
+
+    scale = station_full_scale(design, full_scale_dbm)
     data["capture"] = reader.info.to_json()
     data["corrections"] = plan.to_json()
-    data["carriers"] = _carriers(reader, design, tune, spacing, start_s, duration_s, None)
+    data["full_scale_dbm"] = scale
+    data["full_scale_from"] = (None if scale is None else
+                               "--full-scale-dbm" if full_scale_dbm is not None else "chain spec")
+    data["carriers"] = _carriers(reader, design, tune, spacing, start_s, duration_s, None, scale)
     figs["spectrum.png"], resolution = _spectrum_figure(reader, design, tune, spacing, designed, data["carriers"],
                                                         start_s, duration_s, title)
     data["spectrum"] = resolution.to_json()

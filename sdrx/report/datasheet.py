@@ -137,7 +137,7 @@ def _distortion_json(d) -> dict:
     }
 
 
-def _bench_design(design, noise_figure_db):
+def _bench_design(design, noise_figure_db, full_scale_dbm=None):
     """The design with the noise figure and full scale the sensitivity runs with, and where each came from."""
     fe = design.frontend
     if noise_figure_db is not None:
@@ -146,7 +146,9 @@ def _bench_design(design, noise_figure_db):
         nf, nf_from = fe.noise_figure_db, "chain spec"
     else:
         nf, nf_from = sens.DEFAULT_NOISE_FIGURE_DB, "report default (the chain spec gives none)"
-    if fe.full_scale_dbm is not None:
+    if full_scale_dbm is not None:
+        fs, fs_from = float(full_scale_dbm), "--full-scale-dbm"
+    elif fe.full_scale_dbm is not None:
         fs, fs_from = fe.full_scale_dbm, "chain spec"
     else:
         fs, fs_from = sens.DEFAULT_FULL_SCALE_DBM, "report default (S/N does not depend on it)"
@@ -154,7 +156,7 @@ def _bench_design(design, noise_figure_db):
 
 
 def datasheet_sections(design, tune_hz: float, spacing_hz: float, *, path: str = "fast", noise_figure_db=None,
-                       progress=None) -> tuple:
+                       progress=None, full_scale_dbm=None) -> tuple:
     """Measure sensitivity, fidelity and distortion; return (JSON sections, figures).
 
     Parameters
@@ -165,6 +167,9 @@ def datasheet_sections(design, tune_hz: float, spacing_hz: float, *, path: str =
     noise_figure_db : float, optional
         Noise figure for the sensitivity (default: the spec's, else
         :data:`sdrx.analysis.sensitivity.DEFAULT_NOISE_FIGURE_DB`).
+    full_scale_dbm : float, optional
+        ``--full-scale-dbm``: the full scale of the sensitivity runs, dBm (default:
+        the spec's, else :data:`sdrx.analysis.sensitivity.DEFAULT_FULL_SCALE_DBM`).
     progress : callable, optional
         ``progress(done, total)`` over the three measurements.
 
@@ -176,7 +181,7 @@ def datasheet_sections(design, tune_hz: float, spacing_hz: float, *, path: str =
     """
     from . import datasheet_plots as dp
 
-    bench, nf_from, fs_from = _bench_design(design, noise_figure_db)
+    bench, nf_from, fs_from = _bench_design(design, noise_figure_db, full_scale_dbm)
     step = (lambda k: progress(k, 3)) if progress is not None else (lambda k: None)
     s = sens.measure_sensitivity(bench, tune_hz, path=path, spacing_hz=spacing_hz)
     step(1)

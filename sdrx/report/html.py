@@ -159,16 +159,22 @@ _ms = partial(fixed_text, decimals=1)
 
 
 def _carrier_table(data):
-    rows = ["<tr><th>frequency</th><th>offset</th><th>at antenna, dBFS</th><th>selectivity, dB</th>"
+    known = data.get("full_scale_dbm") is not None
+    dbm_head = "<th>at antenna, dBm</th>" if known else ""
+    rows = ["<tr><th>frequency</th><th>offset</th><th>at antenna, dBFS</th>" + dbm_head + "<th>selectivity, dB</th>"
             "<th>at detector, dBFS</th><th>tuned</th><th>image</th><th>within 2 channels</th></tr>"]
-    cols = (("freq_hz", as_hz), ("offset_hz", as_offset), ("antenna_dbfs", as_db1), ("selectivity_db", as_db2),
-            ("detector_dbfs", as_db1), ("tuned", None), ("image", None), ("within_two_channels", None))
+    cols = (("freq_hz", as_hz), ("offset_hz", as_offset), ("antenna_dbfs", as_db1)) + (
+        (("antenna_dbm", as_db1),) if known else ()) + (
+        ("selectivity_db", as_db2), ("detector_dbfs", as_db1), ("tuned", None), ("image", None),
+        ("within_two_channels", None))
     for i, c in enumerate(data["carriers"]):
         b = f"carriers.{i}."
         rows.append("<tr>%s</tr>" % "".join(_num(data, b + k, fmt or as_plain) for k, fmt in cols))
     return ("<table>" + "".join(rows) + "</table>"
             '<p class="note">Level at the detector = level at the antenna + the designed selectivity at that '
-            "frequency (relative to a carrier at the tune, i.e. with the chain's gain at the tune taken as 0 dB).</p>")
+            "frequency (relative to a carrier at the tune, i.e. with the chain's gain at the tune taken as 0 dB)."
+            + (f" dBm = dBFS + the full scale, {data['full_scale_dbm']:g} dBm ({_e(data['full_scale_from'])})."
+               if known else "") + "</p>")
 
 
 def _agc_section(d, figures) -> str:
