@@ -70,19 +70,22 @@ class Carrier:
 
 def _window_peaks(p_db: np.ndarray, lo: int, hi: int, halfwidth: int):
     """Bins of local maxima in p_db[lo:hi] standing _PEAK_DB over the window's median (and within
-    _RANGE_DB of the window's strongest: a window's carriers depend on that window only)."""
-    seg = p_db[lo:hi]
-    if len(seg) < 3:
+    _RANGE_DB of the window's strongest: a window's carriers depend on that window and the main lobe
+    beside it only)."""
+    if hi - lo < 3:
         return []
-    floor = float(np.median(seg))
-    big = signal.argrelmax(seg, order=halfwidth, mode="clip")[0]
-    big = [k for k in big if seg[k] > floor + _PEAK_DB and 0 < k < len(seg) - 1]
-    big.sort(key=lambda k: -seg[k])
+    floor = float(np.median(p_db[lo:hi]))
+    # maxima are judged against neighbours on both sides of the tile's edges (a carrier on an edge,
+    # e.g. at a multiple of TILE_HZ, is its tile's); only those inside the tile are its own
+    e_lo, e_hi = max(lo - halfwidth, 0), min(hi + halfwidth, len(p_db))
+    big = signal.argrelmax(p_db[e_lo:e_hi], order=halfwidth, mode="clip")[0] + e_lo
+    big = [int(k) for k in big if lo <= k < hi and 0 < k < len(p_db) - 1 and p_db[k] > floor + _PEAK_DB]
+    big.sort(key=lambda k: -p_db[k])
     big = big[:_MAX_PER_WINDOW]
     if big:
-        top = seg[big[0]]
-        big = [k for k in big if seg[k] > top - _RANGE_DB]
-    return [lo + k for k in big]
+        top = p_db[big[0]]
+        big = [k for k in big if p_db[k] > top - _RANGE_DB]
+    return big
 
 
 def _blackman_transform(theta: np.ndarray, n: int) -> np.ndarray:
