@@ -35,6 +35,7 @@ __all__ = [
     "MAX_SURVEY_BINS",
     "MAX_CAPTURE_SAMPLES",
     "MAX_FLOAT_SAMPLE",
+    "MAX_PREROLL_S",
     "check_range",
     "format_value",
 ]
@@ -68,6 +69,10 @@ MAX_TOTAL_ORDER = 48
 MAX_SURVEY_BINS = 1 << 22
 #: samples a capture may hold (2^40: 12.7 days at 1 MS/s)
 MAX_CAPTURE_SAMPLES = 1 << 40
+#: the receiver's pre-roll (its steady-state start) at most this long: it is a whole number of samples at the
+#: capture, channel, IF and audio rates, and rates in an awkward ratio push that common grid out to hours
+#: (the pre-roll's own need is under 0.2 s for every preset; the history is held in memory)
+MAX_PREROLL_S = 2.0
 #: largest magnitude of a float sample (full scale is 1.0; +120 dBFS cannot be meant)
 MAX_FLOAT_SAMPLE = 1e6
 

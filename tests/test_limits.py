@@ -215,3 +215,19 @@ def test_capture_rate_with_an_awkward_ratio_to_the_audio_rate(tmp_path, capsys):
     rc, out, err = run(["receive", tmp_path / "odd.sigmf-meta", "--tune", "1M", "-o", tmp_path / "o.wav"], capsys)
     one_line(rc, err, "ratio to audio.rate 48 kHz is 375/748; the resampler takes ratios up to 20000 in numerator "
                       "× denominator (a capture rate of at least 96 kHz always works)")
+
+
+@pytest.mark.parametrize("path", ["fast", "exact"])
+def test_capture_rate_whose_common_grid_with_the_receiver_is_hours_away(tmp_path, capsys, path):
+    """A fuzz finding: at 800326.6412494909 Hz the shortest pre-roll on one sample grid with the receiver's
+    96 kHz, 48 kHz (and IF) rates is 10^9 s: it tried to allocate 43 TiB. Refused, naming the limit."""
+    meta = {"global": {"core:datatype": "ci16_le", "core:version": "1.0.0", "core:sample_rate": 800326.6412494909},
+            "captures": [{"core:sample_start": 0, "core:frequency": 1e6}], "annotations": []}
+    (tmp_path / "r.sigmf-meta").write_text(json.dumps(meta))
+    (tmp_path / "r.sigmf-data").write_bytes(bytes(4 * 200000))
+    rc, out, err = run(["receive", tmp_path / "r.sigmf-meta", "--tune", "1M", "--path", path,
+                        "-o", tmp_path / "o.wav"], capsys)
+    line = one_line(rc, err, " s is outside 0 s to 2 s (the shortest start on one sample grid with the receiver's "
+                             "rates 96 kHz, 48 kHz")
+    assert line.startswith("sdrx: error: capture rate 800.327 kHz: pre-roll: "), line
+    assert not (tmp_path / "o.wav").exists()

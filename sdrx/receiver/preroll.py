@@ -44,6 +44,9 @@ from fractions import Fraction
 import numpy as np
 from scipy import signal
 
+from ..limits import MAX_PREROLL_S, check_range
+from ..units import format_frequency
+
 __all__ = ["Carrier", "estimate_carriers", "carrier_history", "preroll_seconds", "preroll_samples",
            "ESTIMATE_S", "TILE_HZ", "FADE_S"]
 
@@ -273,6 +276,11 @@ def preroll_samples(seconds: float, fs: float, *other_rates: float, multiple_of:
     and a multiple of ``multiple_of`` (the channelizer's hop: its segments then fall where a run without
     the pre-roll would have them).
 
+    Raises
+    ------
+    ParameterError
+        When that count exceeds ``limits.MAX_PREROLL_S`` (rates in an awkward ratio).
+
     Examples
     --------
     >>> preroll_samples(0.01, 2.4e6, 96e3, 48e3)   # a multiple of 50 samples
@@ -285,4 +293,9 @@ def preroll_samples(seconds: float, fs: float, *other_rates: float, multiple_of:
         fr = (Fraction(r).limit_denominator(1000) / Fraction(fs).limit_denominator(1000))
         grid = grid * fr.denominator // math.gcd(grid, fr.denominator)
     n = int(math.ceil(seconds * fs - 1e-9))
-    return grid * int(math.ceil(n / grid))
+    count = grid * int(math.ceil(n / grid))
+    rates = ", ".join(format_frequency(r) for r in other_rates)
+    check_range(count / fs, f"capture rate {format_frequency(fs)}: pre-roll", 0.0, MAX_PREROLL_S, unit="s",
+                why=f"the shortest start on one sample grid with the receiver's rates {rates}; a capture rate in "
+                    "a simpler ratio to them avoids it")
+    return count
