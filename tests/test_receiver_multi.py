@@ -149,3 +149,45 @@ def test_the_blanker_runs_once_for_every_station():
     assert _below_signal_db(out[0], want) < -105.0     # measured -113 dB (the issue's bound: 100 dB)
     with pytest.raises(ParameterError, match=r"\[blanker\] differ"):
         MultiReceiver([(d, 0.93e6), (design_chain("medium"), 1.01e6)], info)
+
+
+def test_stations_of_one_chain_run_together_and_equal_each_alone(band_signal):
+    """Stations of one chain run their back ends as one (sdrx/receiver/backend_batch.py): the same
+    audio, AGC range and levels as each station's back end stepping alone, and as its own receiver."""
+    info = iq_info(FS, CENTER)
+    d = design_chain("medium")
+    freqs = [0.93e6, 1.01e6, 1.15e6, 0.97e6]
+    together, alone = MultiReceiver([(d, f) for f in freqs], info), MultiReceiver([(d, f) for f in freqs], info)
+    alone._back_ends = lambda n_in, us: [alone._feed(i, n_in, u) for i, u in enumerate(us)]
+    x = band_signal
+    outs = []
+    for mr in (together, alone):
+        parts = [mr.process(x[i:i + 7919]) for i in range(0, len(x), 7919)] + [mr.flush()]
+        outs.append([np.concatenate([p[i] for p in parts]) for i in range(len(freqs))])
+    for i, f in enumerate(freqs):
+        a, b = together.stations[i], alone.stations[i]
+        # numpy's log10 and 10**x against Python's on each gain step: equal here (the same C library)
+        np.testing.assert_array_equal(outs[0][i], outs[1][i])
+        assert a.stats() == b.stats()
+        assert a.backend.meter.depths == b.backend.meter.depths
+        want, _ = run_receiver(d, info, f, x)
+        assert _below_signal_db(outs[0][i], want) < -115.0, i
+
+
+def test_the_batched_back_end_runs_the_batch():
+    """The stations of one chain do share the batched path once their AGCs have settled (not all alone)."""
+    from sdrx.receiver import backend_batch
+
+    info = iq_info(FS, CENTER)
+    d = design_chain("medium")
+    mr = MultiReceiver([(d, 0.93e6), (d, 1.01e6)], info)
+    seen = []
+    orig = backend_batch._alike
+    backend_batch._alike = lambda bs, u: seen.append(len(bs)) or orig(bs, u)
+    try:
+        x = carrier(0.93e6, -20, FS, CENTER, int(0.5 * FS)).astype(np.complex64)
+        mr.process(x)
+        mr.flush()
+    finally:
+        backend_batch._alike = orig
+    assert seen and set(seen) == {2}

@@ -29,11 +29,12 @@ more than 100 dB below the signal; a single station alone is identical).
 Where the work goes, per station (measured in ``make bench``): the
 channelizer's share (up to four channels: wanted, image, and the monitor's
 flat channels at the tune and the image), the monitor's spectra, the IF
-stages, and the back end (AGC, detector, audio filters, resampler), which
-still runs once per station by :meth:`MultiReceiver._back_ends`. That
-method is the seam where a back end vectorised across stations can slot in
-(the AGC's control loop, one Python step per 64 channel samples, is the
-largest part of it).
+stages, and the back end (AGC, detector, audio filters, resampler). The back
+ends of the stations that share a chain run as one
+(:func:`~sdrx.receiver.backend_batch.process_together`): the AGC's control
+loop steps all of them with one array operation per interval, the filters
+run as 2-D ``sosfilt`` calls; each station's audio is the same samples as
+its back end stepping alone (tested).
 """
 
 from __future__ import annotations
@@ -44,12 +45,11 @@ from typing import Sequence
 import numpy as np
 
 from ..dsp.channelbank import ChannelBank
+from .backend_batch import process_together
 from .monitor import feed_spectra
 from .receiver import Receiver
 
-__all__ = ["MultiReceiver", "StationReceiver", "BACK_END_THREADS"]
-
-BACK_END_THREADS = 2   # this machine's cores; the back ends of many stations share them
+__all__ = ["MultiReceiver", "StationReceiver"]
 
 
 class _BankedFront:
@@ -265,7 +265,6 @@ class MultiReceiver:
         self.groups = [_Group(m, info, first_sample, self.preroll_n) for m in by_rate.values()]
         self._order = [self.stations.index(rx) for g in self.groups for rx in g.members]
         self._pool = None
-        self._back_pool = None
         self._pending = None      # (n_in, [u per station]) of the previous block
         self._flushed = False
         self._mark = None         # capture sample at which the statistics restart
@@ -290,18 +289,19 @@ class MultiReceiver:
         return out
 
     def _back_ends(self, n_in: int, us) -> list:
-        """Each station's back end on its IF output: the seam for a back end vectorised across stations.
+        """Each station's back end on its IF output; the stations of one chain as one
+        (:func:`~sdrx.receiver.backend_batch.process_together`: one array operation per stage over them).
 
-        Stations are independent, so they run on a small pool of threads (numpy and scipy release the
-        interpreter in their array loops); each station's output does not depend on the order.
+        In the chunk where a segment's statistics restart, each station steps alone (split at the mark).
         """
-        if len(us) < 2:
+        if self._mark is not None and any(self._split(i, len(u)) is not None for i, u in enumerate(us)):
             return [self._feed(i, n_in, u) for i, u in enumerate(us)]
-        if self._back_pool is None:
-            from concurrent.futures import ThreadPoolExecutor
-
-            self._back_pool = ThreadPoolExecutor(max_workers=BACK_END_THREADS, thread_name_prefix="sdrx-band-back")
-        return list(self._back_pool.map(lambda i: self._feed(i, n_in, us[i]), range(len(us))))
+        for i, (rx, u) in enumerate(zip(self.stations, us)):
+            rx._n_in += n_in
+            rx._n_u += len(u)
+            self._n_u[i] += len(u)
+        audio = process_together([rx.backend for rx in self.stations], us)
+        return [rx._out(a) for rx, a in zip(self.stations, audio)]
 
     def _feed(self, i: int, n_in: int, u) -> np.ndarray:
         rx = self.stations[i]
@@ -391,11 +391,9 @@ class MultiReceiver:
 
     def close(self) -> None:
         """Stop the worker thread (also after an error part-way through); idempotent."""
-        for name in ("_pool", "_back_pool"):
-            pool = getattr(self, name)
-            if pool is not None:
-                pool.shutdown(wait=True, cancel_futures=True)
-                setattr(self, name, None)
+        if self._pool is not None:
+            self._pool.shutdown(wait=True, cancel_futures=True)
+            self._pool = None
         if self.noise is not None:
             self.noise.close()
 
