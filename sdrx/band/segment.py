@@ -11,6 +11,7 @@ so the same function runs in this process or on a Dask worker.
 
 from __future__ import annotations
 
+import contextlib
 import math
 from dataclasses import dataclass
 from fractions import Fraction
@@ -202,15 +203,14 @@ def run_segment(job: SegmentJob, sink=None, progress=None) -> SegmentResult:
     pos = seg.warm
     try:
         blocks = reader.blocks(_block_size(n_ch), start_s=seg.warm / fs, duration_s=(stop - seg.warm) / fs)
-        for block in _prefetch(blocks):
-            if spec is not None:
-                spec.feed(block, pos)
-            pos += len(block)
-            emit(mr.process(block))
-            if progress is not None:
-                progress(min(seg.samples, max(0, pos - seg.start)))
-            if cuts and all(c.full for c in cuts):
-                break
+        with contextlib.closing(_prefetch(_spectrogram_fed(blocks, spec, seg.warm))) as ahead:
+            for block in ahead:
+                pos += len(block)
+                emit(mr.process(block))
+                if progress is not None:
+                    progress(min(seg.samples, max(0, pos - seg.start)))
+                if cuts and all(c.full for c in cuts):
+                    break
         emit(mr.flush())
     finally:
         mr.close()
@@ -219,6 +219,20 @@ def run_segment(job: SegmentJob, sink=None, progress=None) -> SegmentResult:
     for i, rx in enumerate(mr.stations):
         _statistics(parts[i], rx, job, seg)
     return SegmentResult(job.capture_index, seg.index, parts, None if spec is None else spec.db)
+
+
+def _spectrogram_fed(blocks, spec, pos: int):
+    """The blocks, each fed to the spectrogram first (in the read-ahead thread, beside the receiving).
+
+    The receiving stops once every station's audio reaches the segment's end, which lies past the end of
+    the segment's samples (the chains' delay), so every spectrogram column of the segment is complete
+    then, whether or not the read-ahead has fed a block more.
+    """
+    for block in blocks:
+        if spec is not None:
+            spec.feed(block, pos)
+        pos += len(block)
+        yield block
 
 
 def _statistics(part: StationPart, rx, job: SegmentJob, seg: Segment) -> None:

@@ -21,6 +21,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+import scipy.fft as sfft
 
 __all__ = ["SpectrogramPlan", "plan_spectrogram", "SpectrogramAccumulator", "spectrogram"]
 
@@ -170,7 +171,7 @@ class SpectrogramAccumulator:
     def _finish(self, x: np.ndarray) -> None:
         p = self.plan
         seg = x.reshape(-1, p.nfft) * self._win
-        spec = np.fft.fft(seg, axis=1) if p.kind == "iq" else np.fft.rfft(seg, axis=1)
+        spec = sfft.fft(seg, axis=1) if p.kind == "iq" else sfft.rfft(seg, axis=1)   # single precision in, out
         power = np.mean(spec.real.astype(np.float64) ** 2 + spec.imag.astype(np.float64) ** 2, axis=0)
         power = power * self._scale
         if p.kind == "iq":

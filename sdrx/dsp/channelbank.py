@@ -26,9 +26,20 @@ import scipy.fft as sfft
 
 from .channelizer import ChannelPlan, _ChannelTables
 
-__all__ = ["ChannelBank"]
+__all__ = ["ChannelBank", "default_batch"]
 
 TWO_PI = 2.0 * math.pi
+
+
+def default_batch(n_channels: int, n_out: int) -> int:
+    """Segments per batch: about 8 MB of complex channel spectra, from 4 to 64 segments.
+
+    Examples
+    --------
+    >>> default_batch(4, 512), default_batch(408, 512)
+    (64, 4)
+    """
+    return max(4, min(64, (8 << 20) // (16 * n_out * max(1, n_channels))))
 
 
 class ChannelBank:
@@ -45,9 +56,10 @@ class ChannelBank:
         is computed twice).
     first_sample : int
         Absolute index of the first input sample (phase continuity).
-    batch : int
+    batch : int, optional
         Segments transformed together (speed and memory only; the output is
-        the same for any value).
+        the same for any value). By default as many as keep a batch's
+        channel spectra near 8 MB (:func:`default_batch`).
     dtype : numpy dtype, optional
         Working precision of the input buffer (default complex64 / float32).
 
@@ -65,7 +77,7 @@ class ChannelBank:
     [True, True]
     """
 
-    def __init__(self, plan: ChannelPlan, is_complex: bool, tables, first_sample: int = 0, batch: int = 4,
+    def __init__(self, plan: ChannelPlan, is_complex: bool, tables, first_sample: int = 0, batch=None,
                  dtype=None):
         self.plan = plan
         self.is_complex = is_complex
@@ -86,7 +98,7 @@ class ChannelBank:
         self.dtype = dtype
         self._buf = np.zeros(plan.overlap, dtype)
         self._next_start = first_sample - plan.overlap
-        self._batch = batch
+        self._batch = default_batch(len(self.tables), plan.n_out) if batch is None else int(batch)
         self.workers = 2
 
     @property
