@@ -70,7 +70,11 @@ def noise_bandwidth_hz(design, tune_hz: float, span_hz: float = 60e3) -> float:
 
 
 class _Spectrum:
-    """Running Welch average and block-minimum of one complex channel."""
+    """Running Welch average and block-minimum of one complex channel.
+
+    The sums and minima are kept in the FFT's own bin order (0 Hz first); :meth:`mean` and
+    :attr:`freqs` give them from the lowest frequency up.
+    """
 
     def __init__(self, fs: float):
         self.fs = fs
@@ -95,7 +99,7 @@ class _Spectrum:
         return sfft.fftshift(sfft.fftfreq(_FRAME, 1.0 / self.fs))
 
     def mean(self) -> np.ndarray:
-        return self.sum / max(self.frames, 1)
+        return sfft.fftshift(self.sum) / max(self.frames, 1)
 
     def line(self, centre_hz: float, half_hz: float):
         """(power, frequency) of the strongest line within centre ± half, or None."""
@@ -122,7 +126,7 @@ class _Spectrum:
         """
         if self.minimum is None:
             return None
-        band = np.abs(self.freqs) <= half_hz
+        band = np.abs(sfft.fftfreq(_FRAME, 1.0 / self.fs)) <= half_hz     # the bins in the FFT's order
         m = self.minimum[band]
         if len(m) < 16:
             return None
@@ -154,7 +158,7 @@ def _feed_alike(spectra, buf: np.ndarray) -> None:
     n = (buf.shape[1] - _FRAME) // _HOP + 1 if buf.shape[1] >= _FRAME else 0
     if n > 0:
         view = np.lib.stride_tricks.sliding_window_view(buf[:, :(n - 1) * _HOP + _FRAME], _FRAME, axis=1)[:, ::_HOP]
-        p = np.abs(sfft.fftshift(sfft.fft(view * first.win, axis=-1), axes=-1)) ** 2     # (spectra, n, frame)
+        p = np.abs(sfft.fft(view * first.win, axis=-1)) ** 2     # (spectra, n, frame), the FFT's bin order
         total = np.stack([sp.sum for sp in spectra])
         block = np.stack([sp._block for sp in spectra])
         minimum = None if first.minimum is None else np.stack([sp.minimum for sp in spectra])

@@ -162,8 +162,8 @@ class _Group:
         self.bank = ChannelBank(first.plan, info.kind == "iq", tables, first_sample=first_sample - preroll_n,
                                 dtype=first.channelizer.dtype)
 
-    def front(self, block) -> list:
-        y = self.bank.process(block)
+    def stations(self, y) -> list:
+        """The bank's output for one block -> every member's IF output (mixers, monitors, IF stages)."""
         mixed = [rx.banked.mix(self._own(rx, [y[r] for r in rows])) for rx, rows in zip(self.members, self.rows)]
         feed_spectra([pair for _, pairs in mixed for pair in pairs])     # every station's monitor at once
         return if_stages_together([rx.banked.front for rx in self.members], [u for u, _ in mixed])
@@ -219,11 +219,14 @@ class MultiReceiver:
 
     Notes
     -----
-    The front end (channel bank and IF stages) of each block runs in a worker
-    thread while the back ends work on the previous block, as in the
-    single-station fast path, so the audio returned lags by one block;
-    :meth:`flush` returns the rest. Output does not depend on the block size
-    or the threading.
+    Each block passes a three-stage pipeline: the channel banks run on it in
+    one worker thread while the stations' fronts (mixers, monitors, IF stages)
+    run on the previous block in another and the back ends on the block before
+    that in the caller's thread (numpy and scipy release the interpreter in
+    their array loops, so the stages share the cores). The audio returned
+    therefore lags by two blocks; :meth:`flush` returns the rest. Each stage
+    keeps its own state and runs its blocks in order, so the output does not
+    depend on the block size or the threading.
 
     Examples
     --------
@@ -264,8 +267,9 @@ class MultiReceiver:
             by_rate.setdefault(rx.fs_ch, []).append(rx)
         self.groups = [_Group(m, info, first_sample, self.preroll_n) for m in by_rate.values()]
         self._order = [self.stations.index(rx) for g in self.groups for rx in g.members]
-        self._pool = None
-        self._pending = None      # (n_in, [u per station]) of the previous block
+        self._pools = None        # the bank's thread and the stations' fronts' thread
+        self._banked = None       # (n_in, future of the banks' outputs) of the previous block
+        self._fronted = None      # (n_in, future of the IF outputs) of the block before that
         self._flushed = False
         self._mark = None         # capture sample at which the statistics restart
         self._n_u = [0] * len(self.stations)
@@ -275,9 +279,12 @@ class MultiReceiver:
         """Restart every station's AGC gain range at this absolute capture sample (a segment's start)."""
         self._mark = int(sample)
 
-    def _front(self, block) -> list:
-        us = [u for g in self.groups for u in g.front(block)]
-        return self._in_order(us)
+    def _banks(self, block) -> list:
+        return [g.bank.process(block) for g in self.groups]
+
+    def _fronts(self, banked) -> list:
+        ys = banked.result()
+        return self._in_order([u for g, y in zip(self.groups, ys) for u in g.stations(y)])
 
     def _front_tail(self) -> list:
         return self._in_order([u for g in self.groups for u in g.front_tail()])
@@ -361,17 +368,33 @@ class MultiReceiver:
         return [np.concatenate(parts) for parts in zip(*outs)]
 
     def _process(self, block: np.ndarray, n_in: int) -> list:
-        if self._pool is None:
+        """A three-stage pipeline: the banks on this block (a thread), the stations' fronts on the
+        previous one (another thread), the back ends on the one before (here); each stage in order."""
+        if self._pools is None:
             from concurrent.futures import ThreadPoolExecutor
 
-            self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="sdrx-band-front")
-        fut = self._pool.submit(self._front, block)
-        if self._pending is not None:
-            out = self._back_ends(*self._pending)
-        else:
-            out = [np.zeros(0) for _ in self.stations]
-        self._pending = (n_in, fut.result())
-        return out
+            self._pools = [ThreadPoolExecutor(max_workers=1, thread_name_prefix=f"sdrx-band-{name}")
+                           for name in ("bank", "front")]
+        banked = (n_in, self._pools[0].submit(self._banks, block))
+        fronted = None
+        if self._banked is not None:
+            n_prev, fut = self._banked
+            fronted = (n_prev, self._pools[1].submit(self._fronts, fut))
+        out = self._back_ends(self._fronted[0], self._fronted[1].result()) if self._fronted is not None else None
+        self._banked, self._fronted = banked, fronted
+        return out if out is not None else [np.zeros(0) for _ in self.stations]
+
+    def _drain(self) -> list:
+        """The back ends on the blocks still in the pipeline, oldest first."""
+        outs = []
+        if self._fronted is not None:
+            outs.append(self._back_ends(self._fronted[0], self._fronted[1].result()))
+        if self._banked is not None:
+            outs.append(self._back_ends(self._banked[0], self._fronts(self._banked[1])))
+        self._banked = self._fronted = None
+        if not outs:
+            return [np.zeros(0) for _ in self.stations]
+        return [np.concatenate(parts) for parts in zip(*outs)]
 
     def flush(self) -> list:
         """End of input: each station's remaining audio (totals are duration × audio rate)."""
@@ -380,9 +403,7 @@ class MultiReceiver:
             # the samples the blanker held back (its look-ahead), as Receiver.flush does
             first = [np.concatenate([a, b]) for a, b in zip(first, self._process(self.blanker.flush(), 0))]
         self._flushed = True
-        head = self._back_ends(*self._pending) if self._pending is not None else [np.zeros(0)] * len(self.stations)
-        head = [np.concatenate([a, b]) for a, b in zip(first, head)]
-        self._pending = None
+        head = [np.concatenate([a, b]) for a, b in zip(first, self._drain())]
         tails = self._front_tail()
         try:
             return [np.concatenate([h, rx.finish(t)]) for h, rx, t in zip(head, self.stations, tails)]
@@ -391,9 +412,9 @@ class MultiReceiver:
 
     def close(self) -> None:
         """Stop the worker thread (also after an error part-way through); idempotent."""
-        if self._pool is not None:
-            self._pool.shutdown(wait=True, cancel_futures=True)
-            self._pool = None
+        for pool in self._pools or ():
+            pool.shutdown(wait=True, cancel_futures=True)
+        self._pools = None
         if self.noise is not None:
             self.noise.close()
 
