@@ -151,8 +151,7 @@ class ChannelBank:
             z = sfft.ifft(Y, axis=2, workers=self.workers, overwrite_x=True)[:, :, self.keep0:]
             z *= self.col_phasor[:, None, :]
             starts = self._next_start + base + np.arange(b, dtype=np.int64) * L
-            z *= self._row_phasor(starts).T[:, :, None]
-            segs[:, done:done + b, :] = z
+            np.multiply(z, self._row_phasor(starts).T[:, :, None], out=segs[:, done:done + b, :])
             done += b
         consumed = n_seg * L
         if consumed:
