@@ -59,34 +59,65 @@ class _Loops:
     def run(self, levels: np.ndarray) -> tuple:
         """Advance over intervals with these levels (agcs × intervals); (start dB, end dB) per interval.
 
-        Term by term :meth:`Agc._run_intervals` outside its held start.
+        Term by term :meth:`Agc._run_intervals` outside its held start. The gains go into one array
+        ``gains`` (intervals + 2, agcs): interval j runs from ``gains[j]`` to ``gains[j + 1]`` and sets
+        ``gains[j + 2]``; the gain range is taken from it after the loop.
         """
+        a0 = self.agcs[0]
+        n_ivl = levels.shape[1]
+        level_db = (20.0 * np.log10(np.where(levels > 1e-15, levels, 1e-15))).T     # (intervals, agcs)
+        gains = np.empty((n_ivl + 2, levels.shape[0]))
+        gains[0], gains[1] = self.prev, self.gain
+        if a0._hang:
+            self.hang_left = self._steps_with_hang(level_db, gains, self.hang_left)
+        else:
+            self._steps(level_db, gains)
+        self._note_range(gains, n_ivl)
+        self.prev, self.gain = gains[n_ivl], gains[n_ivl + 1]
+        return gains[:n_ivl].T, gains[1:n_ivl + 1].T
+
+    def _steps(self, level_db, gains) -> None:
+        """The loop without hang: attack when the level is too high, release otherwise, then the clamps."""
+        a0 = self.agcs[0]
+        a_att, a_rel = a0._a_att, a0._a_rel
+        gmin, gmax = a0.spec.min_gain_db, a0.spec.max_gain_db
+        ref = self.ref
+        for j in range(len(level_db)):
+            prev, g = gains[j], gains[j + 1]
+            e = ref - (level_db[j] + 0.5 * (prev + g))
+            ng = g + e * np.where(e < 0, a_att, a_rel)
+            np.clip(ng, gmin, gmax, out=gains[j + 2])
+
+    def _steps_with_hang(self, level_db, gains, hang_left) -> np.ndarray:
+        """The loop with hang: a level within the margin (or too high) restarts the timer; release
+        waits for it to run out."""
         a0 = self.agcs[0]
         a_att, a_rel, hang = a0._a_att, a0._a_rel, a0._hang
         gmin, gmax = a0.spec.min_gain_db, a0.spec.max_gain_db
-        step, stats_from, stats_to = a0.step, a0._stats_from, a0._stats_to
-        level_db = 20.0 * np.log10(np.where(levels > 1e-15, levels, 1e-15))
-        starts = np.empty(levels.shape)
-        ends = np.empty(levels.shape)
-        prev, g, hang_left = self.prev, self.gain, self.hang_left
-        for j in range(levels.shape[1]):
-            self.ivl_start += self.ivl_len
-            self.ivl_len = step
-            starts[:, j] = prev
-            ends[:, j] = g
-            e = self.ref - (level_db[:, j] + 0.5 * (prev + g))
+        ref = self.ref
+        for j in range(len(level_db)):
+            prev, g = gains[j], gains[j + 1]
+            e = ref - (level_db[j] + 0.5 * (prev + g))
             high = e < 0
-            held = ~high & (e <= HANG_MARGIN_DB) if hang else np.zeros_like(high)
+            held = ~high & (e <= HANG_MARGIN_DB)
             counting = ~high & ~held & (hang_left > 0)
-            ng = np.where(high, g + e * a_att, np.where(high | held | counting, g, g + e * a_rel))
+            ng = np.where(high, g + e * a_att, np.where(held | counting, g, g + e * a_rel))
             hang_left = np.where(high | held, hang, np.where(counting, hang_left - 1, hang_left))
-            ng = np.where(ng < gmin, gmin, np.where(ng > gmax, gmax, ng))
-            prev, g = g, ng
-            if stats_from < self.ivl_start + step and self.ivl_start < stats_to:
-                self.seen_lo = np.minimum(self.seen_lo, np.minimum(prev, g))
-                self.seen_hi = np.maximum(self.seen_hi, np.maximum(prev, g))
-        self.prev, self.gain, self.hang_left = prev, g, hang_left
-        return starts, ends
+            np.clip(ng, gmin, gmax, out=gains[j + 2])
+        return hang_left
+
+    def _note_range(self, gains, n_ivl: int) -> None:
+        """Widen the gain range by the ramp each interval starts (from ``gains[j + 1]`` to ``gains[j + 2]``),
+        for the intervals that lie inside the counted samples (the grid is the same for every AGC)."""
+        a0 = self.agcs[0]
+        step = a0.step
+        starts = self.ivl_start + self.ivl_len + step * np.arange(n_ivl)   # each interval's successor
+        self.ivl_start, self.ivl_len = (int(starts[-1]), step) if n_ivl else (self.ivl_start, self.ivl_len)
+        inside = (a0._stats_from < starts + step) & (starts < a0._stats_to)
+        if inside.any():
+            ramps = np.stack([gains[1:n_ivl + 1][inside], gains[2:n_ivl + 2][inside]])
+            self.seen_lo = np.minimum(self.seen_lo, ramps.min(axis=(0, 1)))
+            self.seen_hi = np.maximum(self.seen_hi, ramps.max(axis=(0, 1)))
 
     def store(self) -> None:
         """Write the loop state back into each AGC (Python scalars, as its own loop keeps them)."""
