@@ -149,6 +149,20 @@ def process_together(agcs, u: np.ndarray, mag: np.ndarray) -> np.ndarray:
     -------
     ndarray
         The gained rows.
+
+    Examples
+    --------
+    >>> import copy
+    >>> from sdrx.chain.spec import AgcSpec
+    >>> from sdrx.dsp.agc import Agc
+    >>> agcs = [Agc(AgcSpec(), 96000.0, fixed_gain_db=0.0, start_gain_db=0.0) for _ in range(2)]
+    >>> u = np.array([np.full(5000, 0.01 + 0j), np.full(5000, 0.1 + 0j)])
+    >>> for a, row in zip(agcs, u):
+    ...     _ = a.process(row)                      # past the held start: the loops now run alike
+    >>> alone = copy.deepcopy(agcs)
+    >>> y = process_together(agcs, u, np.abs(u))
+    >>> bool(np.array_equal(y, [a.process(row)[0] for a, row in zip(alone, u)]))
+    True
     """
     n_agc, n = u.shape
     first = agcs[0]
