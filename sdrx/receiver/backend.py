@@ -16,7 +16,7 @@ from ..dsp.detectors import make_detector
 from ..dsp.notch import make_notch
 from ..dsp.resample import RationalResampler
 
-__all__ = ["Backend", "LevelMeter", "AGC_STEP"]
+__all__ = ["Backend", "LevelMeter", "feed_meters", "AGC_STEP"]
 
 #: samples of the channel rate per AGC control interval
 AGC_STEP = 64
@@ -45,27 +45,49 @@ class LevelMeter:
         self.depths: list = []
 
     def feed(self, env: np.ndarray, env_gained: np.ndarray) -> None:
-        pos = 0
-        while pos < len(env):
-            take = min(self.n - self._cnt, len(env) - pos)
-            self._sum += float(np.sum(env[pos:pos + take]))
-            self._cnt += take
-            pos += take
-            if self._cnt == self.n:
-                self.means.append(self._sum / self.n)
-                self._sum, self._cnt = 0.0, 0
-        pos = 0
-        while pos < len(env_gained):
-            take = min(self.nd - self._dcnt, len(env_gained) - pos)
-            seg = env_gained[pos:pos + take]
-            self._dmax = max(self._dmax, float(seg.max()))
-            self._dmin = min(self._dmin, float(seg.min()))
-            self._dcnt += take
-            pos += take
-            if self._dcnt == self.nd:
-                s = self._dmax + self._dmin
-                self.depths.append((self._dmax - self._dmin) / s if s > 0 else 0.0)
-                self._dmax, self._dmin, self._dcnt = 0.0, math.inf, 0
+        """The ungained envelope ``env`` (carrier levels) and the gained one (modulation depth)."""
+        feed_meters([self], env[None, :], env_gained[None, :])
+
+
+def feed_meters(meters, env: np.ndarray, env_gained: np.ndarray) -> None:
+    """``LevelMeter.feed`` of row i on ``meters[i]``, for meters at the same point of their windows.
+
+    Each window's sum is the row's own ``np.sum`` over the window (the same pairwise sum for one row as
+    for many), added to the sum carried from the previous block.
+    """
+    first = meters[0]
+    n = env.shape[1]
+    sums = np.array([m._sum for m in meters])
+    cnt = first._cnt
+    pos = 0
+    while pos < n:
+        take = min(first.n - cnt, n - pos)
+        sums = sums + np.sum(env[:, pos:pos + take], axis=1)
+        cnt += take
+        pos += take
+        if cnt == first.n:
+            for m, s in zip(meters, sums / first.n):
+                m.means.append(float(s))
+            sums, cnt = np.zeros(len(meters)), 0
+    dmax = np.array([m._dmax for m in meters])
+    dmin = np.array([m._dmin for m in meters])
+    dcnt = first._dcnt
+    pos = 0
+    while pos < n:
+        take = min(first.nd - dcnt, n - pos)
+        seg = env_gained[:, pos:pos + take]
+        dmax = np.maximum(dmax, seg.max(axis=1))
+        dmin = np.minimum(dmin, seg.min(axis=1))
+        dcnt += take
+        pos += take
+        if dcnt == first.nd:
+            s = dmax + dmin
+            for m, hi, lo, tot in zip(meters, dmax, dmin, s):
+                m.depths.append(float((hi - lo) / tot) if tot > 0 else 0.0)
+            dmax, dmin, dcnt = np.zeros(len(meters)), np.full(len(meters), math.inf), 0
+    for k, m in enumerate(meters):
+        m._sum, m._cnt = float(sums[k]), cnt
+        m._dmax, m._dmin, m._dcnt = float(dmax[k]), float(dmin[k]), dcnt
 
 
 class Backend:

@@ -17,13 +17,12 @@ stateful detector on) run one at a time.
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 from scipy import signal
 
 from ..dsp.agc_batch import alike_key as agc_key, process_together as agc_together
 from ..dsp.detectors import EnvelopeDetector
+from .backend import feed_meters
 
 __all__ = ["alike_key", "process_together"]
 
@@ -84,7 +83,7 @@ def _alike(backends, u: np.ndarray) -> list:
     for b in backends:
         b._skip -= j
     if n > j:
-        _meter_together([b.meter for b in backends], mag[:, j:], env[:, j:])
+        feed_meters([b.meter for b in backends], mag[:, j:], env[:, j:])
     zi = np.stack([b.zi_audio for b in backends], axis=1)         # (sections, stations, 2)
     a, zf = signal.sosfilt(first.sos_audio, env, axis=-1, zi=zi)  # the envelope detector's output is |ug|
     out = []
@@ -92,40 +91,3 @@ def _alike(backends, u: np.ndarray) -> list:
         b.zi_audio = zf[:, k, :].copy()
         out.append(b.resampler.process(a[k] * b.audio_gain))
     return out
-
-
-def _meter_together(meters, env: np.ndarray, env_gained: np.ndarray) -> None:
-    """``LevelMeter.feed`` on each row, for meters at the same point of their windows."""
-    first = meters[0]
-    n = env.shape[1]
-    sums = np.array([m._sum for m in meters])
-    cnt = first._cnt
-    pos = 0
-    while pos < n:
-        take = min(first.n - cnt, n - pos)
-        sums = sums + np.sum(env[:, pos:pos + take], axis=1)
-        cnt += take
-        pos += take
-        if cnt == first.n:
-            for m, s in zip(meters, sums / first.n):
-                m.means.append(float(s))
-            sums, cnt = np.zeros(len(meters)), 0
-    dmax = np.array([m._dmax for m in meters])
-    dmin = np.array([m._dmin for m in meters])
-    dcnt = first._dcnt
-    pos = 0
-    while pos < n:
-        take = min(first.nd - dcnt, n - pos)
-        seg = env_gained[:, pos:pos + take]
-        dmax = np.maximum(dmax, seg.max(axis=1))
-        dmin = np.minimum(dmin, seg.min(axis=1))
-        dcnt += take
-        pos += take
-        if dcnt == first.nd:
-            s = dmax + dmin
-            for m, hi, lo, tot in zip(meters, dmax, dmin, s):
-                m.depths.append(float((hi - lo) / tot) if tot > 0 else 0.0)
-            dmax, dmin, dcnt = np.zeros(len(meters)), np.full(len(meters), math.inf), 0
-    for k, m in enumerate(meters):
-        m._sum, m._cnt = float(sums[k]), cnt
-        m._dmax, m._dmin, m._dcnt = float(dmax[k]), float(dmin[k]), dcnt
