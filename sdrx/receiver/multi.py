@@ -129,8 +129,14 @@ class StationReceiver(Receiver):
 
     def feed(self, n_in: int, u: np.ndarray) -> np.ndarray:
         """Account for ``n_in`` capture samples whose IF output is ``u``; return the audio completed."""
+        return self.deliver(n_in, len(u), self.backend.process(u))
+
+    def deliver(self, n_in: int, n_u: int, audio: np.ndarray) -> np.ndarray:
+        """Account for ``n_in`` capture samples whose IF output (``n_u`` samples) the back end has made
+        into ``audio`` (alone, or with other stations'); return the audio kept."""
         self._n_in += n_in
-        return self._out(self._back(u))
+        self._n_u += n_u
+        return self._out(audio)
 
     def finish(self, tail_u: np.ndarray) -> np.ndarray:
         """End of input: the IF output's tail in, the remaining audio out (as :meth:`Receiver.flush`)."""
@@ -272,7 +278,6 @@ class MultiReceiver:
         self._fronted = None      # (n_in, future of the IF outputs) of the block before that
         self._flushed = False
         self._mark = None         # capture sample at which the statistics restart
-        self._n_u = [0] * len(self.stations)
         self._n_fed = 0
 
     def restart_statistics_at(self, sample: int) -> None:
@@ -303,23 +308,17 @@ class MultiReceiver:
         """
         if self._mark is not None and any(self._split(i, len(u)) is not None for i, u in enumerate(us)):
             return [self._feed(i, n_in, u) for i, u in enumerate(us)]
-        for i, (rx, u) in enumerate(zip(self.stations, us)):
-            rx._n_in += n_in
-            rx._n_u += len(u)
-            self._n_u[i] += len(u)
         audio = process_together([rx.backend for rx in self.stations], us)
-        return [rx._out(a) for rx, a in zip(self.stations, audio)]
+        return [rx.deliver(n_in, len(u), a) for rx, u, a in zip(self.stations, us, audio)]
 
     def _feed(self, i: int, n_in: int, u) -> np.ndarray:
         rx = self.stations[i]
         k = self._split(i, len(u))
         if k is None:
-            self._n_u[i] += len(u)
             return rx.feed(n_in, u)
         a = rx.feed(n_in, u[:k])
         rx.restart_statistics()
         b = rx.feed(0, u[k:])
-        self._n_u[i] += len(u)
         return np.concatenate([a, b])
 
     def _split(self, i: int, n: int):
@@ -328,7 +327,7 @@ class MultiReceiver:
             return None
         rx = self.stations[i]
         k_mark = int(round((self._mark - self.first_sample) * rx.fs_ch / self.info.fs))
-        k = k_mark - self._n_u[i]
+        k = k_mark - rx._n_u             # the IF samples this station's back end has had
         return k if 0 <= k < n or (k == n == 0) else None
 
     def process(self, block: np.ndarray) -> list:
