@@ -174,7 +174,7 @@ def test_stations_of_one_chain_run_together_and_equal_each_alone(band_signal):
         assert _below_signal_db(outs[0][i], want) < -115.0, i
 
 
-def test_the_batched_back_end_runs_the_batch():
+def test_the_batched_back_end_runs_the_batch(monkeypatch):
     """The stations of one chain do share the batched path once their AGCs have settled (not all alone)."""
     from sdrx.receiver import backend_batch
 
@@ -183,11 +183,8 @@ def test_the_batched_back_end_runs_the_batch():
     mr = MultiReceiver([(d, 0.93e6), (d, 1.01e6)], info)
     seen = []
     orig = backend_batch._alike
-    backend_batch._alike = lambda bs, u: seen.append(len(bs)) or orig(bs, u)
-    try:
-        x = carrier(0.93e6, -20, FS, CENTER, int(0.5 * FS)).astype(np.complex64)
-        mr.process(x)
-        mr.flush()
-    finally:
-        backend_batch._alike = orig
+    monkeypatch.setattr(backend_batch, "_alike", lambda bs, u: seen.append(len(bs)) or orig(bs, u))
+    x = carrier(0.93e6, -20, FS, CENTER, int(0.5 * FS)).astype(np.complex64)
+    mr.process(x)
+    mr.flush()
     assert seen and set(seen) == {2}
