@@ -10,7 +10,9 @@ The steps, each a small function below:
    process the codes go straight into the output WAVs; on workers they go to
    part files on shared storage and the client appends each segment to the
    WAVs as soon as every earlier segment of its capture is in;
-5. write band.json, log.csv and index.html, then commit the whole set.
+5. draw each capture's spectrogram picture as soon as its columns are in
+   (:mod:`sdrx.band.pictures`: a helper process, beside the receiving);
+6. write band.json, log.csv and index.html, then commit the whole set.
 
 A one-process run and a run on any number of workers compute the same
 segments and assemble them in the same order, so their outputs are the same
@@ -329,13 +331,35 @@ def band(captures, out_dir, *, stations="all", min_level_dbfs=None, chains=(), s
     files = sorted(names.values()) + [JSON_FILE, LOG_FILE, PAGE_FILE, MARKER]
     check_band_dir(out_dir, files, inputs, force=force)
     out = Path(out_dir)
-    with output_set(out, files, stale=old, streamed=set(names.values())) as (tmp, outputs):
+    with output_set(out, files, stale=old, streamed=set(names.values())) as (tmp, outputs), \
+            _drawer(caps) as drawer:
+        pictures = _pictures(caps, drawer)
         results = _receive_all(caps, kwargs, names, outputs, designs, float_output, workers, scheduler, progress,
-                               out, work_dir, fs_dbm)
+                               out, work_dir, fs_dbm, pictures)
         summary = _summary(caps, names, designs, results, spacing, segment_s, overlap, float_output, fs_dbm)
-        _write_reports(caps, tmp, summary, results)
+        _write_reports(caps, tmp, summary, pictures)
         tmp[MARKER].write_text(json.dumps({"made_by": "sdrx band", "files": files}, indent=1) + "\n")
     return summary
+
+
+def _drawer(caps):
+    """The spectrogram pictures' drawer: a helper process when the run is long enough to pay for it."""
+    from . import pictures
+
+    return pictures.PictureDrawer(helper=sum(c.count for c in caps) >= pictures.HELPER_MIN_SAMPLES)
+
+
+def _pictures(caps, drawer):
+    """Each capture's picture, drawn as soon as all its segments' spectrogram columns are in."""
+    from .pictures import BandPictures
+
+    return BandPictures(drawer, {c.index: (len(c.segments), _picture_args(c)) for c in caps})
+
+
+def _picture_args(c: _Capture) -> dict:
+    sp = c.spectrogram
+    return {"freqs_hz": sp.freqs_hz, "times_s": sp.times_s, "stations": [(f, station_name(f)) for f, _ in c.stations],
+            "title": f"{Path(c.arg).name}: spectrogram, stations marked", "column_s": sp.column / sp.fs}
 
 
 def _run(fn, jobs, workers, scheduler, **kw):
@@ -345,8 +369,9 @@ def _run(fn, jobs, workers, scheduler, **kw):
 
 
 def _receive_all(caps, kwargs, names, outputs, designs, float_output, workers, scheduler, progress, out,
-                 work_dir, fs_dbm=None) -> dict:
-    """Run every segment; the WAVs are complete (on their temporary paths) when this returns."""
+                 work_dir, fs_dbm, pictures) -> dict:
+    """Run every segment; the WAVs are complete (on their temporary paths) when this returns, and every
+    segment's spectrogram columns have gone to ``pictures``."""
     from .segment import SegmentJob, StationJob, run_segment
 
     local = workers is None and scheduler is None
@@ -375,7 +400,10 @@ def _receive_all(caps, kwargs, names, outputs, designs, float_output, workers, s
                     if progress is not None:
                         progress(min(total, _base + n), total)
 
-                r = run_segment(job, sink=streams.sink(job.capture_index), progress=sub)
+                def seen(db, _c=job.capture_index, _s=job.segment.index):
+                    pictures.add(_c, _s, db)
+
+                r = run_segment(job, sink=streams.sink(job.capture_index), progress=sub, on_spectrogram=seen)
                 done[0] += job.segment.samples
                 return r
 
@@ -386,6 +414,7 @@ def _receive_all(caps, kwargs, names, outputs, designs, float_output, workers, s
         else:
             def take(i, r):
                 results[r.capture_index, r.index] = r
+                pictures.add(r.capture_index, r.index, r.spectrogram)
                 c = caps[r.capture_index]
                 while (c.index, pending[c.index]) in results and pending[c.index] < len(c.segments):
                     streams.append_parts(parts_dir, c, pending[c.index])
@@ -463,8 +492,8 @@ def _summary(caps, names, designs, results, spacing, segment_s, overlap, float_o
     }
 
 
-def _write_reports(caps, tmp, summary, results) -> None:
-    from .figures import level_svg, spectrogram_png
+def _write_reports(caps, tmp, summary, pictures) -> None:
+    from .figures import level_svg
     from .levels import log_csv
     from .page import render_band_page
 
@@ -473,10 +502,7 @@ def _write_reports(caps, tmp, summary, results) -> None:
     tmp[LOG_FILE].write_text(log_csv(log, {k: v for c in caps for k, v in c.scales.items()}))
     page_caps = []
     for c, cs in zip(caps, summary["captures"]):
-        sp = c.spectrogram
-        db = np.concatenate([results[c.index, s.index].spectrogram for s in c.segments], axis=0)
-        png = spectrogram_png(sp.freqs_hz, sp.times_s, db, [(f, station_name(f)) for f, _ in c.stations],
-                              title=f"{Path(c.arg).name}: spectrogram, stations marked", column_s=sp.column / sp.fs)
+        png = pictures.png(c.index)
         st = []
         for (f, _), row in zip(c.stations, cs["stations"]):
             r = c.rows[station_name(f)]

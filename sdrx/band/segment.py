@@ -147,7 +147,7 @@ def _block_size(n_channels: int) -> int:
     return 1 << 20 if n_channels <= 8 else 1 << 18
 
 
-def run_segment(job: SegmentJob, sink=None, progress=None) -> SegmentResult:
+def run_segment(job: SegmentJob, sink=None, progress=None, on_spectrogram=None) -> SegmentResult:
     """Receive every station of ``job`` over its segment.
 
     Parameters
@@ -158,6 +158,10 @@ def run_segment(job: SegmentJob, sink=None, progress=None) -> SegmentResult:
         ``job.parts_dir``.
     progress : callable, optional
         ``progress(samples)``: capture samples of the segment done so far.
+    on_spectrogram : callable, optional
+        ``on_spectrogram(db)``, once, with the segment's spectrogram columns as soon as they are
+        complete (from the read-ahead thread, a block or so before the receiving ends; at the latest
+        before this returns). Not called when the job has no spectrogram.
 
     Returns
     -------
@@ -200,10 +204,12 @@ def run_segment(job: SegmentJob, sink=None, progress=None) -> SegmentResult:
 
     stop = job.first + job.count
     n_ch = sum(len(g.bank.tables) for g in mr.groups)
+    told = _Once(on_spectrogram)
     pos = seg.warm
     try:
         blocks = reader.blocks(_block_size(n_ch), start_s=seg.warm / fs, duration_s=(stop - seg.warm) / fs)
-        with contextlib.closing(_prefetch(_spectrogram_fed(blocks, spec, seg.warm))) as ahead:
+        fed = _spectrogram_fed(blocks, spec, seg.warm, told)
+        with contextlib.closing(_prefetch(fed)) as ahead:
             for block in ahead:
                 pos += len(block)
                 emit(mr.process(block))
@@ -216,13 +222,29 @@ def run_segment(job: SegmentJob, sink=None, progress=None) -> SegmentResult:
         mr.close()
         if own_sink:
             sink.close()
+    if spec is not None:
+        told(spec.db)
     for i, rx in enumerate(mr.stations):
         _statistics(parts[i], rx, job, seg)
     return SegmentResult(job.capture_index, seg.index, parts, None if spec is None else spec.db)
 
 
-def _spectrogram_fed(blocks, spec, pos: int):
-    """The blocks, each fed to the spectrogram first (in the read-ahead thread, beside the receiving).
+class _Once:
+    """Calls ``fn(value)`` the first time only (``fn`` None: never)."""
+
+    def __init__(self, fn):
+        self.fn = fn
+        self.called = False
+
+    def __call__(self, value) -> None:
+        if self.fn is not None and not self.called:
+            self.called = True
+            self.fn(value)
+
+
+def _spectrogram_fed(blocks, spec, pos: int, complete: _Once):
+    """The blocks, each fed to the spectrogram first (in the read-ahead thread, beside the receiving);
+    ``complete(db)`` as soon as its last column is in.
 
     The receiving stops once every station's audio reaches the segment's end, which lies past the end of
     the segment's samples (the chains' delay), so every spectrogram column of the segment is complete
@@ -231,6 +253,8 @@ def _spectrogram_fed(blocks, spec, pos: int):
     for block in blocks:
         if spec is not None:
             spec.feed(block, pos)
+            if spec.complete:
+                complete(spec.db)
         pos += len(block)
         yield block
 
