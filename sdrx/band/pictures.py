@@ -18,6 +18,7 @@ helper cannot start or dies, the picture is drawn here instead (same bytes).
 from __future__ import annotations
 
 import contextlib
+import os
 import pickle
 import queue
 import subprocess
@@ -43,15 +44,13 @@ def _draw(kwargs: dict) -> bytes:
 
 def _warm() -> None:
     """Import matplotlib and draw a tiny picture (loads the fonts), so the first real one is quick."""
-    _draw({"freqs_hz": [0.0, 1.0], "times_s": [0.0], "db": np.zeros((1, 2)), "stations": [(0.5, "x")], "column_s": 1.0})
+    _draw({"freqs_hz": [0.0, 1.0], "times_s": [0.0], "db": np.zeros((1, 2)), "stations": [(0.5, "x")],
+           "column_s": 1.0})
 
 
 def serve() -> None:
     """The helper's loop (``python -c "...; serve()"``): pickled ``(key, kwargs)`` on stdin, pickled
-    ``(key, png)`` on stdout (png None: it failed), until stdin ends."""
-    import os
-    import sys
-
+    ``(key, png)`` on stdout (png None: it failed), until stdin ends or stdout is gone."""
     replies = os.fdopen(os.dup(1), "wb")
     os.dup2(2, 1)             # anything printed goes to stderr, not into the replies
     requests = sys.stdin.buffer
@@ -65,12 +64,16 @@ def serve() -> None:
             png = _draw(kwargs)
         except Exception:     # the parent draws this one itself and so raises the error as its own
             png = None
-        pickle.dump((key, png), replies, protocol=pickle.HIGHEST_PROTOCOL)
-        replies.flush()
+        try:
+            pickle.dump((key, png), replies, protocol=pickle.HIGHEST_PROTOCOL)
+            replies.flush()
+        except OSError:       # the parent is gone
+            return
 
 
 # the helper imports this very sdrx (its folder first unless the path holds it already)
-_HELPER = "import sys; h = {here!r}; h in sys.path or sys.path.insert(0, h); from sdrx.band.pictures import serve; serve()"
+_HELPER = ("import sys; h = {here!r}; h in sys.path or sys.path.insert(0, h); "
+           "from sdrx.band.pictures import serve; serve()")
 
 
 class PictureDrawer:
