@@ -131,3 +131,29 @@ def test_a_segment_hands_over_its_spectrogram_once_from_the_read_ahead(band_capt
                         on_spectrogram=lambda db: told.append((threading.current_thread().name, db)))
         assert len(told) == 1 and told[0][0] == "sdrx-read"
         assert told[0][1] is r.spectrogram and len(r.spectrogram) > 0
+
+
+def test_an_interrupted_band_run_leaves_no_helper_and_no_folder(band_capture, tmp_path, monkeypatch):
+    import sdrx.band.segment as segment
+
+    started = []
+    real_start, real_encode = PictureDrawer._start, segment.encode_audio
+    calls = []
+
+    def start(self):
+        real_start(self)
+        started.append(self._proc)
+
+    def encode(a, float_output):
+        calls.append(1)
+        if len(calls) == 1:
+            raise KeyboardInterrupt        # Ctrl-C part-way through the receiving
+        return real_encode(a, float_output)
+
+    monkeypatch.setattr(pictures, "HELPER_MIN_SAMPLES", 0)
+    monkeypatch.setattr(PictureDrawer, "_start", start)
+    monkeypatch.setattr(segment, "encode_audio", encode)
+    with pytest.raises(KeyboardInterrupt):
+        band([band_capture], tmp_path / "out", stations="1010k", duration_s=3)
+    assert len(started) == 1 and started[0].poll() is not None
+    assert not (tmp_path / "out").exists()
